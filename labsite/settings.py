@@ -1,0 +1,174 @@
+"""Tauline settings: one file, driven by environment variables.
+
+With nothing set, a fresh checkout runs on an embedded SQLite database under ``var/`` and runs
+background tasks in-process. Every variable is listed, with a one-line comment, in ``.env.example``.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import dj_database_url
+import django_stubs_ext
+from django.core.exceptions import ImproperlyConfigured
+
+from labsite.env import env_bool, env_int, env_list, env_str
+
+# Lets generic classes such as ModelAdmin[Model] be subscripted at run time, for type checking.
+django_stubs_ext.monkeypatch()
+
+BASE_DIR = Path(__file__).resolve().parent.parent
+VAR_DIR = BASE_DIR / "var"
+
+DEBUG = env_bool("DJANGO_DEBUG", True)
+
+_INSECURE_DEV_KEY = "insecure-dev-only-key-never-use-in-production"  # noqa: S105 - guarded below
+SECRET_KEY = env_str("DJANGO_SECRET_KEY")
+if not SECRET_KEY:
+    if not DEBUG:
+        raise ImproperlyConfigured(
+            "DJANGO_SECRET_KEY is not set. It is required when DJANGO_DEBUG is off: set it to a long "
+            "random string (for example the output of "
+            "`python -c 'import secrets; print(secrets.token_urlsafe(50))'`), "
+            "or set DJANGO_SECRET_KEY_FILE to a file holding it."
+        )
+    SECRET_KEY = _INSECURE_DEV_KEY
+
+ALLOWED_HOSTS = env_list(
+    "DJANGO_ALLOWED_HOSTS", ["127.0.0.1", "localhost", "[::1]"] if DEBUG else []
+)
+CSRF_TRUSTED_ORIGINS = env_list("DJANGO_CSRF_TRUSTED_ORIGINS", [])
+
+INSTALLED_APPS = [
+    "django.contrib.admin",
+    "django.contrib.auth",
+    "django.contrib.contenttypes",
+    "django.contrib.sessions",
+    "django.contrib.messages",
+    "django.contrib.staticfiles",
+    "rest_framework",
+    "testing.apps.TestingConfig",
+    "reports.apps.ReportsConfig",
+]
+
+MIDDLEWARE = [
+    "django.middleware.security.SecurityMiddleware",
+    "django.contrib.sessions.middleware.SessionMiddleware",
+    "django.middleware.common.CommonMiddleware",
+    "django.middleware.csrf.CsrfViewMiddleware",
+    "django.contrib.auth.middleware.AuthenticationMiddleware",
+    "django.contrib.messages.middleware.MessageMiddleware",
+    "django.middleware.clickjacking.XFrameOptionsMiddleware",
+]
+
+ROOT_URLCONF = "labsite.urls"
+WSGI_APPLICATION = "labsite.wsgi.application"
+
+TEMPLATES = [
+    {
+        "BACKEND": "django.template.backends.django.DjangoTemplates",
+        "DIRS": [BASE_DIR / "templates"],
+        "APP_DIRS": True,
+        "OPTIONS": {
+            "context_processors": [
+                "django.template.context_processors.request",
+                "django.contrib.auth.context_processors.auth",
+                "django.contrib.messages.context_processors.messages",
+            ],
+        },
+    },
+]
+
+# --- Database -------------------------------------------------------------------------------
+_DEFAULT_SQLITE = f"sqlite:///{VAR_DIR / 'tauline.sqlite3'}"
+DATABASE_URL = env_str("DATABASE_URL") or _DEFAULT_SQLITE
+try:
+    DATABASES = {"default": dj_database_url.parse(DATABASE_URL, conn_max_age=60)}
+except ValueError as exc:  # an unknown scheme or a malformed URL
+    raise ImproperlyConfigured(f"DATABASE_URL is not a valid database URL: {exc}") from exc
+if DATABASES["default"]["ENGINE"] == "django.db.backends.sqlite3":
+    DATABASES["default"]["CONN_MAX_AGE"] = 0
+    DATABASES["default"].setdefault("OPTIONS", {})["timeout"] = 20
+
+DEFAULT_AUTO_FIELD = "django.db.models.BigAutoField"
+
+# --- Background tasks -------------------------------------------------------------------------
+REDIS_URL = env_str("REDIS_URL")
+CELERY_TASK_ALWAYS_EAGER = not REDIS_URL  # no broker configured: run tasks in-process
+CELERY_TASK_EAGER_PROPAGATES = True
+CELERY_BROKER_URL = REDIS_URL or "memory://"
+CELERY_RESULT_BACKEND = REDIS_URL or None
+CELERY_TASK_ACKS_LATE = True
+CELERY_TASK_REJECT_ON_WORKER_LOST = True
+CELERY_WORKER_PREFETCH_MULTIPLIER = 1
+CELERY_TASK_SOFT_TIME_LIMIT = env_int("TAULINE_TASK_SOFT_TIME_LIMIT", 600, minimum=1)
+CELERY_TASK_TIME_LIMIT = CELERY_TASK_SOFT_TIME_LIMIT + 60
+# Keep time limits well below the broker's visibility timeout, or a long task is redelivered.
+CELERY_BROKER_TRANSPORT_OPTIONS = {"visibility_timeout": 3 * CELERY_TASK_TIME_LIMIT}
+CELERY_TASK_SERIALIZER = "json"
+CELERY_ACCEPT_CONTENT = ["json"]
+
+if REDIS_URL:
+    CACHES = {"default": {"BACKEND": "django.core.cache.backends.redis.RedisCache", "LOCATION": REDIS_URL}}
+else:
+    CACHES = {"default": {"BACKEND": "django.core.cache.backends.locmem.LocMemCache"}}
+
+# --- Auth -------------------------------------------------------------------------------------
+AUTH_PASSWORD_VALIDATORS = [
+    {"NAME": "django.contrib.auth.password_validation.UserAttributeSimilarityValidator"},
+    {"NAME": "django.contrib.auth.password_validation.MinimumLengthValidator"},
+    {"NAME": "django.contrib.auth.password_validation.CommonPasswordValidator"},
+    {"NAME": "django.contrib.auth.password_validation.NumericPasswordValidator"},
+]
+LOGIN_URL = "login"
+LOGIN_REDIRECT_URL = "home"
+LOGOUT_REDIRECT_URL = "login"
+
+# --- Internationalisation ---------------------------------------------------------------------
+LANGUAGE_CODE = "en-gb"
+TIME_ZONE = env_str("TAULINE_TIME_ZONE", "UTC")
+USE_I18N = True
+USE_TZ = True
+
+# --- Files ------------------------------------------------------------------------------------
+STATIC_URL = "static/"
+STATIC_ROOT = Path(env_str("DJANGO_STATIC_ROOT") or (VAR_DIR / "static"))
+STATICFILES_DIRS = [BASE_DIR / "static"] if (BASE_DIR / "static").is_dir() else []
+MEDIA_URL = "media/"
+MEDIA_ROOT = Path(env_str("MEDIA_ROOT") or (VAR_DIR / "media"))
+
+# --- API --------------------------------------------------------------------------------------
+REST_FRAMEWORK = {
+    "DEFAULT_PERMISSION_CLASSES": ["rest_framework.permissions.IsAuthenticated"],
+    "DEFAULT_AUTHENTICATION_CLASSES": [
+        "rest_framework.authentication.SessionAuthentication",
+    ],
+    "DEFAULT_PAGINATION_CLASS": "rest_framework.pagination.PageNumberPagination",
+    "PAGE_SIZE": 50,
+}
+
+# --- Security (tightened further when DEBUG is off) -------------------------------------------
+SESSION_COOKIE_HTTPONLY = True
+SESSION_COOKIE_SAMESITE = "Lax"
+CSRF_COOKIE_SAMESITE = "Lax"
+SECURE_CONTENT_TYPE_NOSNIFF = True
+SECURE_REFERRER_POLICY = "same-origin"
+X_FRAME_OPTIONS = "DENY"
+if not DEBUG:
+    SESSION_COOKIE_SECURE = env_bool("DJANGO_SECURE_COOKIES", True)
+    CSRF_COOKIE_SECURE = SESSION_COOKIE_SECURE
+    SECURE_SSL_REDIRECT = env_bool("DJANGO_SECURE_SSL_REDIRECT", False)
+    SECURE_HSTS_SECONDS = env_int("DJANGO_HSTS_SECONDS", 0, minimum=0)
+    SECURE_PROXY_SSL_HEADER = ("HTTP_X_FORWARDED_PROTO", "https")
+
+# --- Lab ---------------------------------------------------------------------------------------
+TAULINE_LAB_NAME = env_str("TAULINE_LAB_NAME", "Tauline demonstration laboratory")
+TAULINE_DEMO_PASSWORD = env_str("TAULINE_DEMO_PASSWORD", "tauline-demo")
+TAULINE_DEFAULT_TURNAROUND_DAYS = env_int("TAULINE_DEFAULT_TURNAROUND_DAYS", 15, minimum=1)
+
+LOGGING = {
+    "version": 1,
+    "disable_existing_loggers": False,
+    "handlers": {"console": {"class": "logging.StreamHandler"}},
+    "root": {"handlers": ["console"], "level": env_str("TAULINE_LOG_LEVEL", "INFO")},
+}

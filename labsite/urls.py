@@ -1,0 +1,15 @@
+"""Top-level URL map."""
+
+from django.contrib import admin
+from django.contrib.auth import views as auth_views
+from django.urls import include, path
+
+from labsite import health
+
+urlpatterns = [
+    path("healthz", health.healthz, name="healthz"),
+    path("accounts/login/", auth_views.LoginView.as_view(), name="login"),
+    path("accounts/logout/", auth_views.LogoutView.as_view(), name="logout"),
+    path("admin/", admin.site.urls),
+    path("", include("testing.urls")),
+]

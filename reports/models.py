@@ -1,0 +1,1 @@
+"""Reports, revisions and sign-offs arrive with the reporting work; this app may import testing."""

@@ -1,0 +1,45 @@
+"""Lab records, one module per aggregate; explicit re-exports keep imports stable."""
+
+from testing.models.clients import Borehole, Organisation, Project
+from testing.models.direct_shear import (
+    AreaModel,
+    BoxShape,
+    ConsolidationReading,
+    DirectShearTest,
+    ForceUnit,
+    MethodProfile,
+    NormalLoading,
+    ShearReading,
+    ShearStage,
+    ShearType,
+    TestCondition,
+)
+from testing.models.people import LabProfile, Role
+from testing.models.samples import Sample, SampleEvent, SampleStatus, SampleType
+from testing.models.specimens import Preparation, Specimen, SpecimenShape
+
+__all__ = [
+    "AreaModel",
+    "Borehole",
+    "BoxShape",
+    "ConsolidationReading",
+    "DirectShearTest",
+    "ForceUnit",
+    "LabProfile",
+    "MethodProfile",
+    "NormalLoading",
+    "Organisation",
+    "Preparation",
+    "Project",
+    "Role",
+    "Sample",
+    "SampleEvent",
+    "SampleStatus",
+    "SampleType",
+    "ShearReading",
+    "ShearStage",
+    "ShearType",
+    "Specimen",
+    "SpecimenShape",
+    "TestCondition",
+]

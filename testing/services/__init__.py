@@ -1,0 +1,1 @@
+"""Writes. Each function owns its transaction and checks the acting user's role."""

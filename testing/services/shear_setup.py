@@ -1,0 +1,85 @@
+"""Setting up a direct shear test set, its stages, and storing a stage's readings."""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from typing import Any
+
+from django.contrib.auth.models import AbstractBaseUser
+from django.db import transaction
+
+from testing import access
+from testing.models import (
+    ConsolidationReading,
+    DirectShearTest,
+    Project,
+    ShearReading,
+    ShearStage,
+    Specimen,
+)
+from testing.models.direct_shear import DEFAULT_EDITIONS, MethodProfile
+from testing.services.errors import NotAllowed, ServiceError
+
+
+def _require_technician(user: AbstractBaseUser) -> None:
+    if not access.can_enter_readings(user):
+        raise NotAllowed("Only technicians and the lab manager can set up tests and enter readings.")
+
+
+def shear_test_create(
+    *, user: AbstractBaseUser, project: Project, reference: str, method: str, **fields: Any
+) -> DirectShearTest:
+    _require_technician(user)
+    fields.setdefault("method_edition", DEFAULT_EDITIONS[MethodProfile(method)])
+    test = DirectShearTest(project=project, reference=reference, method=method, created_by=user, **fields)
+    test.full_clean()
+    test.save()
+    return test
+
+
+def stage_create(
+    *, user: AbstractBaseUser, test: DirectShearTest, specimen: Specimen, stage_number: int, **fields: Any
+) -> ShearStage:
+    _require_technician(user)
+    if specimen.sample.borehole.project_id != test.project_id:
+        raise ServiceError("The specimen comes from another project than the test set.")
+    if test.released_at is not None:
+        raise ServiceError("This test set has been reported; its stages cannot change.")
+    stage = ShearStage(test=test, specimen=specimen, stage_number=stage_number, **fields)
+    stage.full_clean()
+    stage.save()
+    return stage
+
+
+def stage_readings_store(
+    *,
+    user: AbstractBaseUser,
+    stage: ShearStage,
+    consolidation: Sequence[tuple[float, float]] = (),
+    shear: Sequence[tuple[int, int, float, float, float, float]] = (),
+) -> tuple[int, int]:
+    """Replace a stage's readings in one transaction.
+
+    ``consolidation`` rows are (elapsed_min, settlement_mm); ``shear`` rows are
+    (traverse, seq, elapsed_min, horizontal_mm, vertical_mm, force_reading). Returns the counts saved.
+    """
+    _require_technician(user)
+    if stage.test.released_at is not None:
+        raise ServiceError("This test set has been reported; its readings cannot change.")
+    with transaction.atomic():
+        ConsolidationReading.objects.filter(stage=stage).delete()
+        ShearReading.objects.filter(stage=stage).delete()
+        ConsolidationReading.objects.bulk_create(
+            [ConsolidationReading(stage=stage, elapsed_min=t, settlement_mm=s) for t, s in consolidation],
+            batch_size=2000,
+        )
+        ShearReading.objects.bulk_create(
+            [
+                ShearReading(
+                    stage=stage, traverse=tr, seq=seq, elapsed_min=t, horizontal_mm=x, vertical_mm=y, force_reading=f
+                )
+                for tr, seq, t, x, y, f in shear
+            ],
+            batch_size=2000,
+        )
+    return len(consolidation), len(shear)

@@ -76,7 +76,7 @@ class DirectShearTest(models.Model):
             models.CheckConstraint(name="shear_test_box_length_positive", condition=Q(box_length_mm__gt=0)),
             models.CheckConstraint(
                 name="shear_test_box_width",
-                condition=(Q(box_shape=BoxShape.SQUARE) & Q(box_width_mm__gt=0))
+                condition=(Q(box_shape=BoxShape.SQUARE) & Q(box_width_mm__isnull=False, box_width_mm__gt=0))
                 | (Q(box_shape=BoxShape.CIRCULAR) & Q(box_width_mm__isnull=True)),
             ),
             models.CheckConstraint(
@@ -138,6 +138,10 @@ class ShearStage(models.Model):
                 name="stage_lever_loading_complete",
                 condition=~Q(loading=NormalLoading.LEVER)
                 | Q(
+                    direct_mass_kg__isnull=False,
+                    hanger_mass_kg__isnull=False,
+                    weights_mass_kg__isnull=False,
+                    lever_ratio__isnull=False,
                     direct_mass_kg__gte=0,
                     hanger_mass_kg__gte=0,
                     weights_mass_kg__gte=0,
@@ -147,7 +151,8 @@ class ShearStage(models.Model):
             ),
             models.CheckConstraint(
                 name="stage_frame_loading_complete",
-                condition=~Q(loading=NormalLoading.FRAME) | Q(applied_normal_stress_kpa__gt=0),
+                condition=~Q(loading=NormalLoading.FRAME)
+                | Q(applied_normal_stress_kpa__isnull=False, applied_normal_stress_kpa__gt=0),
             ),
             models.CheckConstraint(name="stage_force_factor_positive", condition=Q(force_factor_n_per_unit__gt=0)),
             models.CheckConstraint(

@@ -74,19 +74,20 @@ class Specimen(models.Model):
             models.CheckConstraint(
                 name="specimen_square_dimensions",
                 condition=~Q(shape=SpecimenShape.SQUARE)
-                | Q(length_mm__gt=0, width_mm__gt=0, diameter_mm__isnull=True),
+                | Q(length_mm__isnull=False, width_mm__isnull=False, length_mm__gt=0, width_mm__gt=0, diameter_mm__isnull=True),
             ),
             models.CheckConstraint(
                 name="specimen_circular_dimensions",
                 condition=~Q(shape=SpecimenShape.CIRCULAR)
-                | Q(diameter_mm__gt=0, length_mm__isnull=True, width_mm__isnull=True),
+                | Q(diameter_mm__isnull=False, diameter_mm__gt=0, length_mm__isnull=True, width_mm__isnull=True),
             ),
             models.CheckConstraint(
                 name="specimen_recompacted_has_target",
                 condition=~Q(preparation=Preparation.RECOMPACTED)
-                | Q(target_dry_density_mg_m3__gt=0),
+                | Q(target_dry_density_mg_m3__isnull=False, target_dry_density_mg_m3__gt=0),
             ),
         ]
+        # NULL makes a CHECK pass in SQL, so each "must be set" condition says isnull=False explicitly.
 
     def __str__(self) -> str:
         return f"{self.sample}/{self.reference}"

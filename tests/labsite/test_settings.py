@@ -50,3 +50,14 @@ def test_defaults_run_on_sqlite_with_eager_tasks_and_redis_switches_to_a_broker(
     assert _load_settings().stdout.split() == ["True", "True", "django.db.backends.sqlite3"]
     result = _load_settings(REDIS_URL="redis://127.0.0.1:1/0", DATABASE_URL="postgres://u@127.0.0.1:5432/x")
     assert result.stdout.split() == ["True", "False", "django.db.backends.postgresql"], result.stderr
+
+
+def test_every_setting_read_is_documented_in_env_example() -> None:
+    import re
+
+    source = (ROOT / "labsite" / "settings.py").read_text(encoding="utf-8")
+    read = set(re.findall(r"env_(?:str|bool|int|list)\(\s*\"([A-Z_]+)\"", source))
+    documented = {line.split("=", 1)[0] for line in (ROOT / ".env.example").read_text().splitlines()
+                  if line and not line.startswith("#")}
+    assert read, "no settings found: the pattern above no longer matches settings.py"
+    assert read - documented == set()

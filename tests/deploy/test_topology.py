@@ -62,6 +62,7 @@ class Processes:
     def __init__(self, log_dir: Path) -> None:
         self.log_dir = log_dir
         self.started: list[subprocess.Popen[bytes]] = []
+        self.names: list[str] = []
         self.logs: list[Path] = []
 
     def start(self, name: str, argv: list[str], env: dict[str, str]) -> subprocess.Popen[bytes]:
@@ -78,6 +79,7 @@ class Processes:
                 start_new_session=True,  # its own group: children (gunicorn workers) stop with it
             )
         self.started.append(proc)
+        self.names.append(name)
         return proc
 
     def stop_all(self) -> None:
@@ -227,9 +229,9 @@ def test_gunicorn_and_celery_worker_on_redis(tmp_path: Path) -> None:
             health_url = f"http://127.0.0.1:{web_port}/healthz"
 
             def web_up() -> bool:
-                for proc in procs.started:
+                for name, proc in zip(procs.names, procs.started, strict=True):
                     if proc.poll() is not None:
-                        pytest.fail(f"{proc.args[0]} exited early\n{_tails(procs.logs)}")
+                        pytest.fail(f"{name} exited early\n{_tails(procs.logs)}")
                 try:
                     return _http_get(health_url)[0] != 0
                 except OSError:

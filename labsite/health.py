@@ -21,7 +21,9 @@ def healthz(request: HttpRequest) -> JsonResponse:
         import redis
 
         try:
-            redis.Redis.from_url(settings.REDIS_URL, socket_timeout=1, socket_connect_timeout=1).ping()
+            redis.Redis.from_url(
+                settings.REDIS_URL, socket_timeout=1, socket_connect_timeout=1
+            ).ping()
             checks["broker"] = "ok"
         except redis.RedisError:
             checks["broker"] = "down"

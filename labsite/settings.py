@@ -22,7 +22,7 @@ VAR_DIR = BASE_DIR / "var"
 
 DEBUG = env_bool("DJANGO_DEBUG", True)
 
-_INSECURE_DEV_KEY = "insecure-dev-only-key-never-use-in-production"  # noqa: S105 - guarded below
+_INSECURE_DEV_KEY = "insecure-dev-only-key-never-use-in-production"
 SECRET_KEY = env_str("DJANGO_SECRET_KEY")
 if not SECRET_KEY:
     if not DEBUG:
@@ -109,7 +109,9 @@ CELERY_TASK_SERIALIZER = "json"
 CELERY_ACCEPT_CONTENT = ["json"]
 
 if REDIS_URL:
-    CACHES = {"default": {"BACKEND": "django.core.cache.backends.redis.RedisCache", "LOCATION": REDIS_URL}}
+    CACHES = {
+        "default": {"BACKEND": "django.core.cache.backends.redis.RedisCache", "LOCATION": REDIS_URL}
+    }
 else:
     CACHES = {"default": {"BACKEND": "django.core.cache.backends.locmem.LocMemCache"}}
 

@@ -12,13 +12,22 @@ from __future__ import annotations
 
 from typing import TypeVar
 
-from django.contrib.auth.models import AbstractBaseUser, AnonymousUser
+from django.contrib.auth.models import AnonymousUser, User
+from django.core.exceptions import ObjectDoesNotExist
 from django.db.models import Model, Q, QuerySet
 from django.http import Http404
 
-from testing.models import Borehole, DirectShearTest, LabProfile, Project, Sample, ShearStage, Specimen
+from testing.models import (
+    Borehole,
+    DirectShearTest,
+    LabProfile,
+    Project,
+    Sample,
+    ShearStage,
+    Specimen,
+)
 
-AnyUser = AbstractBaseUser | AnonymousUser
+AnyUser = User | AnonymousUser
 M = TypeVar("M", bound=Model)
 
 _NOTHING = Q(pk__in=[])
@@ -29,7 +38,7 @@ def profile_of(user: AnyUser) -> LabProfile | None:
     if not user.is_authenticated or not user.is_active:
         return None
     try:
-        return user.lab_profile  # type: ignore[union-attr]
+        return user.lab_profile
     except LabProfile.DoesNotExist:
         return None
 
@@ -73,7 +82,9 @@ def can_manage(user: AnyUser) -> bool:
 # --- Visibility filters: one per object type, relative to that type ---------------------------
 
 
-def _organisation_filter(user: AnyUser, path: str, *, released_only: bool = False, released_path: str = "") -> Q:
+def _organisation_filter(
+    user: AnyUser, path: str, *, released_only: bool = False, released_path: str = ""
+) -> Q:
     if is_lab_staff(user):
         return Q()
     org_id = client_organisation_id(user)
@@ -114,7 +125,7 @@ def stage_filter(user: AnyUser) -> Q:
 def _get(queryset: QuerySet[M], condition: Q, object_id: object) -> M:
     try:
         return queryset.filter(condition).get(pk=object_id)
-    except (queryset.model.DoesNotExist, ValueError, TypeError) as exc:
+    except (ObjectDoesNotExist, ValueError, TypeError) as exc:
         raise Http404("No such record.") from exc
 
 
@@ -131,12 +142,20 @@ def sample_get_for_user(*, user: AnyUser, sample_id: object) -> Sample:
 
 
 def specimen_get_for_user(*, user: AnyUser, specimen_id: object) -> Specimen:
-    return _get(Specimen.objects.select_related("sample__borehole__project"), specimen_filter(user), specimen_id)
+    return _get(
+        Specimen.objects.select_related("sample__borehole__project"),
+        specimen_filter(user),
+        specimen_id,
+    )
 
 
 def test_get_for_user(*, user: AnyUser, test_id: object) -> DirectShearTest:
-    return _get(DirectShearTest.objects.select_related("project__organisation"), test_filter(user), test_id)
+    return _get(
+        DirectShearTest.objects.select_related("project__organisation"), test_filter(user), test_id
+    )
 
 
 def stage_get_for_user(*, user: AnyUser, stage_id: object) -> ShearStage:
-    return _get(ShearStage.objects.select_related("test__project", "specimen"), stage_filter(user), stage_id)
+    return _get(
+        ShearStage.objects.select_related("test__project", "specimen"), stage_filter(user), stage_id
+    )

@@ -28,7 +28,14 @@ from testing.models import (
 
 @admin.register(LabProfile)
 class LabProfileAdmin(admin.ModelAdmin[LabProfile]):
-    list_display = ("user", "is_technician", "is_checker", "is_approver", "is_manager", "organisation")
+    list_display = (
+        "user",
+        "is_technician",
+        "is_checker",
+        "is_approver",
+        "is_manager",
+        "organisation",
+    )
     list_filter = ("is_technician", "is_checker", "is_approver", "is_manager", "organisation")
     search_fields = ("user__username", "user__first_name", "user__last_name", "organisation__name")
     autocomplete_fields = ("organisation",)
@@ -69,9 +76,23 @@ class SampleEventInline(admin.TabularInline[SampleEvent, Sample]):
 
 @admin.register(Sample)
 class SampleAdmin(admin.ModelAdmin[Sample]):
-    list_display = ("reference", "borehole", "depth_top_m", "depth_base_m", "sample_type", "status", "received_on", "due_on")
+    list_display = (
+        "reference",
+        "borehole",
+        "depth_top_m",
+        "depth_base_m",
+        "sample_type",
+        "status",
+        "received_on",
+        "due_on",
+    )
     list_filter = ("status", "sample_type", "borehole__project__organisation", "received_on")
-    search_fields = ("reference", "borehole__reference", "borehole__project__reference", "description")
+    search_fields = (
+        "reference",
+        "borehole__reference",
+        "borehole__project__reference",
+        "description",
+    )
     readonly_fields = ("status", "status_changed_at")
     date_hierarchy = "received_on"
     list_select_related = ("borehole__project",)
@@ -106,13 +127,31 @@ class SpecimenAdmin(admin.ModelAdmin[Specimen]):
 class ShearStageInline(admin.TabularInline[ShearStage, DirectShearTest]):
     model = ShearStage
     extra = 0
-    fields = ("stage_number", "specimen", "loading", "hanger_mass_kg", "weights_mass_kg", "lever_ratio", "rate_mm_per_min")
+    fields = (
+        "stage_number",
+        "specimen",
+        "loading",
+        "hanger_mass_kg",
+        "weights_mass_kg",
+        "lever_ratio",
+        "rate_mm_per_min",
+    )
     raw_id_fields = ("specimen",)
 
 
 @admin.register(DirectShearTest)
 class DirectShearTestAdmin(admin.ModelAdmin[DirectShearTest]):
-    list_display = ("reference", "project", "method", "method_edition", "box_shape", "box_length_mm", "requested_on", "due_on", "released_at")
+    list_display = (
+        "reference",
+        "project",
+        "method",
+        "method_edition",
+        "box_shape",
+        "box_length_mm",
+        "requested_on",
+        "due_on",
+        "released_at",
+    )
     list_filter = ("method", "box_shape", "condition", "shear_type", "area_model")
     search_fields = ("reference", "project__reference", "apparatus")
     list_select_related = ("project",)
@@ -139,7 +178,15 @@ class ConsolidationReadingAdmin(admin.ModelAdmin[ConsolidationReading]):
 
 @admin.register(ShearReading)
 class ShearReadingAdmin(admin.ModelAdmin[ShearReading]):
-    list_display = ("stage", "traverse", "seq", "elapsed_min", "horizontal_mm", "vertical_mm", "force_reading")
+    list_display = (
+        "stage",
+        "traverse",
+        "seq",
+        "elapsed_min",
+        "horizontal_mm",
+        "vertical_mm",
+        "force_reading",
+    )
     list_filter = ("stage__test", "traverse")
     search_fields = ("stage__test__reference",)
     list_select_related = ("stage__test__project",)

@@ -23,7 +23,9 @@ def projects_for_user(*, user: AnyUser) -> QuerySet[Project]:
 
 
 def samples_for_user(*, user: AnyUser) -> QuerySet[Sample]:
-    return Sample.objects.filter(access.sample_filter(user)).select_related("borehole__project__organisation")
+    return Sample.objects.filter(access.sample_filter(user)).select_related(
+        "borehole__project__organisation"
+    )
 
 
 def tests_for_user(*, user: AnyUser) -> QuerySet[DirectShearTest]:
@@ -37,10 +39,14 @@ def tests_for_user(*, user: AnyUser) -> QuerySet[DirectShearTest]:
 def sample_status_counts(*, user: AnyUser, today: date | None = None) -> dict[str, int]:
     """Sample counts per lifecycle state, plus ``overdue`` (open and past its due date), in one query."""
     today = today or timezone.localdate()
-    aggregates = {status.value: Count("pk", filter=Q(status=status.value)) for status in SampleStatus}
+    aggregates = {
+        status.value: Count("pk", filter=Q(status=status.value)) for status in SampleStatus
+    }
     aggregates["overdue"] = Count("pk", filter=Q(status__in=OPEN_STATUSES, due_on__lt=today))
     return samples_for_user(user=user).aggregate(**aggregates)
 
 
 def sample_events_for_user(*, user: AnyUser, sample: Sample) -> QuerySet[SampleEvent]:
-    return SampleEvent.objects.filter(sample=sample, sample__in=samples_for_user(user=user)).select_related("by")
+    return SampleEvent.objects.filter(
+        sample=sample, sample__in=samples_for_user(user=user)
+    ).select_related("by")

@@ -12,24 +12,24 @@ from decimal import Decimal
 from typing import Any
 
 import pytest
-from django.contrib.auth.models import AbstractUser
+from django.contrib.auth.models import User
 
 from testing.models import Borehole, Organisation, Project, Role, Sample, SampleType
 from testing.services.accounts import lab_user_create
 from testing.services.records import sample_receive
 
-PASSWORD = "correct-horse-battery-staple"  # noqa: S105 - test-only
+PASSWORD = "correct-horse-battery-staple"
 
 
 @dataclass(frozen=True)
 class Cast:
-    technician: AbstractUser
-    checker: AbstractUser
-    approver: AbstractUser
-    manager: AbstractUser
-    client_a: AbstractUser
-    client_b: AbstractUser
-    deactivated: AbstractUser
+    technician: User
+    checker: User
+    approver: User
+    manager: User
+    client_a: User
+    client_b: User
+    deactivated: User
     org_a: Organisation
     org_b: Organisation
 
@@ -59,8 +59,12 @@ def cast(db: None) -> Cast:
         checker=lab_user_create(username="checker", password=PASSWORD, roles=[Role.CHECKER]),
         approver=lab_user_create(username="approver", password=PASSWORD, roles=[Role.APPROVER]),
         manager=lab_user_create(username="manager", password=PASSWORD, roles=[Role.MANAGER]),
-        client_a=lab_user_create(username="client-a", password=PASSWORD, roles=[Role.CLIENT], organisation=org_a),
-        client_b=lab_user_create(username="client-b", password=PASSWORD, roles=[Role.CLIENT], organisation=org_b),
+        client_a=lab_user_create(
+            username="client-a", password=PASSWORD, roles=[Role.CLIENT], organisation=org_a
+        ),
+        client_b=lab_user_create(
+            username="client-b", password=PASSWORD, roles=[Role.CLIENT], organisation=org_b
+        ),
         deactivated=deactivated,
         org_a=org_a,
         org_b=org_b,
@@ -68,7 +72,9 @@ def cast(db: None) -> Cast:
 
 
 def make_records(cast: Cast, organisation: Organisation, prefix: str) -> Records:
-    project = Project.objects.create(organisation=organisation, reference=f"{prefix}-001", name=f"{prefix} site")
+    project = Project.objects.create(
+        organisation=organisation, reference=f"{prefix}-001", name=f"{prefix} site"
+    )
     borehole = Borehole.objects.create(project=project, reference="BH01")
     sample = sample_receive(
         user=cast.technician,

@@ -17,7 +17,14 @@ def test_analysis_core_loads_no_framework_in_a_fresh_interpreter() -> None:
         f"bad = sorted(m for m in sys.modules if m.split('.')[0] in {FRAMEWORKS!r}); "
         "print(','.join(bad)); print(a.ANALYSIS_VERSION)"
     )
-    result = subprocess.run([sys.executable, "-c", code], cwd=ROOT, capture_output=True, text=True, timeout=60, check=False)
+    result = subprocess.run(
+        [sys.executable, "-c", code],
+        cwd=ROOT,
+        capture_output=True,
+        text=True,
+        timeout=60,
+        check=False,
+    )
     assert result.returncode == 0, result.stderr
     loaded, version = result.stdout.splitlines()
     assert loaded == ""
@@ -36,7 +43,11 @@ def _imported_roots(path: Path) -> set[str]:
 
 
 def test_testing_app_never_imports_reports() -> None:
-    offenders = [str(p.relative_to(ROOT)) for p in (ROOT / "testing").rglob("*.py") if "reports" in _imported_roots(p)]
+    offenders = [
+        str(p.relative_to(ROOT))
+        for p in (ROOT / "testing").rglob("*.py")
+        if "reports" in _imported_roots(p)
+    ]
     assert offenders == []
 
 

@@ -29,7 +29,9 @@ class Organisation(models.Model):
 
 
 class Project(models.Model):
-    organisation = models.ForeignKey(Organisation, on_delete=models.PROTECT, related_name="projects")
+    organisation = models.ForeignKey(
+        Organisation, on_delete=models.PROTECT, related_name="projects"
+    )
     reference = models.CharField(max_length=40, unique=True, help_text="Lab's project reference.")
     client_reference = models.CharField(max_length=80, blank=True)
     name = models.CharField(max_length=200)
@@ -64,7 +66,9 @@ class Borehole(models.Model):
     class Meta:
         ordering = ["project", "reference"]
         constraints = [
-            models.UniqueConstraint(fields=["project", "reference"], name="borehole_ref_unique_in_project"),
+            models.UniqueConstraint(
+                fields=["project", "reference"], name="borehole_ref_unique_in_project"
+            ),
             models.CheckConstraint(name="borehole_reference_not_blank", condition=~Q(reference="")),
             models.CheckConstraint(
                 name="borehole_final_depth_positive",

@@ -45,21 +45,37 @@ class ShearType(models.TextChoices):
 class DirectShearTest(models.Model):
     """A set of specimens tested together under one method profile, apparatus and box."""
 
-    project = models.ForeignKey("testing.Project", on_delete=models.PROTECT, related_name="shear_tests")
-    reference = models.CharField(max_length=40, help_text="Test set reference, unique in the project.")
+    project = models.ForeignKey(
+        "testing.Project", on_delete=models.PROTECT, related_name="shear_tests"
+    )
+    reference = models.CharField(
+        max_length=40, help_text="Test set reference, unique in the project."
+    )
     method = models.CharField(max_length=20, choices=MethodProfile.choices)
     method_edition = models.CharField(max_length=40)
     apparatus = models.CharField(max_length=80, blank=True, help_text="Apparatus id.")
     box_shape = models.CharField(max_length=8, choices=BoxShape.choices, default=BoxShape.SQUARE)
-    box_length_mm = models.FloatField(help_text="Box length in the shear direction, or diameter [mm].")
-    box_width_mm = models.FloatField(null=True, blank=True, help_text="Box width [mm] (square boxes).")
-    condition = models.CharField(max_length=10, choices=TestCondition.choices, default=TestCondition.SUBMERGED)
-    shear_type = models.CharField(max_length=10, choices=ShearType.choices, default=ShearType.SINGLE)
-    area_model = models.CharField(max_length=10, choices=AreaModel.choices, default=AreaModel.NOMINAL)
+    box_length_mm = models.FloatField(
+        help_text="Box length in the shear direction, or diameter [mm]."
+    )
+    box_width_mm = models.FloatField(
+        null=True, blank=True, help_text="Box width [mm] (square boxes)."
+    )
+    condition = models.CharField(
+        max_length=10, choices=TestCondition.choices, default=TestCondition.SUBMERGED
+    )
+    shear_type = models.CharField(
+        max_length=10, choices=ShearType.choices, default=ShearType.SINGLE
+    )
+    area_model = models.CharField(
+        max_length=10, choices=AreaModel.choices, default=AreaModel.NOMINAL
+    )
     requested_on = models.DateField()
     due_on = models.DateField(null=True, blank=True)
     instructions = models.TextField(blank=True, help_text="Client's test instructions.")
-    created_by = models.ForeignKey(settings.AUTH_USER_MODEL, on_delete=models.PROTECT, related_name="+")
+    created_by = models.ForeignKey(
+        settings.AUTH_USER_MODEL, on_delete=models.PROTECT, related_name="+"
+    )
     created_at = models.DateTimeField(auto_now_add=True)
     released_at = models.DateTimeField(
         null=True,
@@ -71,12 +87,20 @@ class DirectShearTest(models.Model):
     class Meta:
         ordering = ["project", "reference"]
         constraints = [
-            models.UniqueConstraint(fields=["project", "reference"], name="shear_test_ref_unique_in_project"),
-            models.CheckConstraint(name="shear_test_reference_not_blank", condition=~Q(reference="")),
-            models.CheckConstraint(name="shear_test_box_length_positive", condition=Q(box_length_mm__gt=0)),
+            models.UniqueConstraint(
+                fields=["project", "reference"], name="shear_test_ref_unique_in_project"
+            ),
+            models.CheckConstraint(
+                name="shear_test_reference_not_blank", condition=~Q(reference="")
+            ),
+            models.CheckConstraint(
+                name="shear_test_box_length_positive", condition=Q(box_length_mm__gt=0)
+            ),
             models.CheckConstraint(
                 name="shear_test_box_width",
-                condition=(Q(box_shape=BoxShape.SQUARE) & Q(box_width_mm__isnull=False, box_width_mm__gt=0))
+                condition=(
+                    Q(box_shape=BoxShape.SQUARE) & Q(box_width_mm__isnull=False, box_width_mm__gt=0)
+                )
                 | (Q(box_shape=BoxShape.CIRCULAR) & Q(box_width_mm__isnull=True)),
             ),
             models.CheckConstraint(
@@ -104,26 +128,43 @@ class ShearStage(models.Model):
 
     test = models.ForeignKey(DirectShearTest, on_delete=models.CASCADE, related_name="stages")
     stage_number = models.PositiveSmallIntegerField()
-    specimen = models.OneToOneField("testing.Specimen", on_delete=models.PROTECT, related_name="stage")
-    loading = models.CharField(max_length=6, choices=NormalLoading.choices, default=NormalLoading.LEVER)
+    specimen = models.OneToOneField(
+        "testing.Specimen", on_delete=models.PROTECT, related_name="stage"
+    )
+    loading = models.CharField(
+        max_length=6, choices=NormalLoading.choices, default=NormalLoading.LEVER
+    )
     direct_mass_kg = models.FloatField(
-        null=True, blank=True, help_text="Mass bearing directly on the specimen: cap, plates, yoke [kg]."
+        null=True,
+        blank=True,
+        help_text="Mass bearing directly on the specimen: cap, plates, yoke [kg].",
     )
     hanger_mass_kg = models.FloatField(null=True, blank=True, help_text="Hanger mass [kg].")
-    weights_mass_kg = models.FloatField(null=True, blank=True, help_text="Slotted weights on the hanger [kg].")
-    lever_ratio = models.FloatField(null=True, blank=True, help_text="Lever ratio [–] (1 for direct loading).")
+    weights_mass_kg = models.FloatField(
+        null=True, blank=True, help_text="Slotted weights on the hanger [kg]."
+    )
+    lever_ratio = models.FloatField(
+        null=True, blank=True, help_text="Lever ratio [–] (1 for direct loading)."
+    )
     beam_offset_force_n = models.FloatField(
-        default=0.0, help_text="Net force from an unbalanced beam, from the machine's calibration [N]."
+        default=0.0,
+        help_text="Net force from an unbalanced beam, from the machine's calibration [N].",
     )
     applied_normal_stress_kpa = models.FloatField(
         null=True, blank=True, help_text="Applied normal stress from a load frame [kPa]."
     )
-    force_unit = models.CharField(max_length=4, choices=ForceUnit.choices, default=ForceUnit.DIVISIONS)
+    force_unit = models.CharField(
+        max_length=4, choices=ForceUnit.choices, default=ForceUnit.DIVISIONS
+    )
     force_factor_n_per_unit = models.FloatField(
         default=1.0, help_text="Ring constant [N/div], or 1 for a load cell reading in N."
     )
-    force_zero_reading = models.FloatField(default=0.0, help_text="Force reading at zero load [div or N].")
-    rate_mm_per_min = models.FloatField(null=True, blank=True, help_text="Displacement rate set [mm/min].")
+    force_zero_reading = models.FloatField(
+        default=0.0, help_text="Force reading at zero load [div or N]."
+    )
+    rate_mm_per_min = models.FloatField(
+        null=True, blank=True, help_text="Displacement rate set [mm/min]."
+    )
     consolidation_started_at = models.DateTimeField(null=True, blank=True)
     shear_started_at = models.DateTimeField(null=True, blank=True)
     traverses = models.PositiveSmallIntegerField(default=1, help_text="Number of shear traverses.")
@@ -132,7 +173,9 @@ class ShearStage(models.Model):
     class Meta:
         ordering = ["test", "stage_number"]
         constraints = [
-            models.UniqueConstraint(fields=["test", "stage_number"], name="stage_number_unique_in_test"),
+            models.UniqueConstraint(
+                fields=["test", "stage_number"], name="stage_number_unique_in_test"
+            ),
             models.CheckConstraint(name="stage_number_positive", condition=Q(stage_number__gte=1)),
             models.CheckConstraint(
                 name="stage_lever_loading_complete",
@@ -154,9 +197,12 @@ class ShearStage(models.Model):
                 condition=~Q(loading=NormalLoading.FRAME)
                 | Q(applied_normal_stress_kpa__isnull=False, applied_normal_stress_kpa__gt=0),
             ),
-            models.CheckConstraint(name="stage_force_factor_positive", condition=Q(force_factor_n_per_unit__gt=0)),
             models.CheckConstraint(
-                name="stage_rate_positive", condition=Q(rate_mm_per_min__isnull=True) | Q(rate_mm_per_min__gt=0)
+                name="stage_force_factor_positive", condition=Q(force_factor_n_per_unit__gt=0)
+            ),
+            models.CheckConstraint(
+                name="stage_rate_positive",
+                condition=Q(rate_mm_per_min__isnull=True) | Q(rate_mm_per_min__gt=0),
             ),
             models.CheckConstraint(name="stage_traverses_positive", condition=Q(traverses__gte=1)),
         ]
@@ -166,16 +212,27 @@ class ShearStage(models.Model):
 
 
 class ConsolidationReading(models.Model):
-    stage = models.ForeignKey(ShearStage, on_delete=models.CASCADE, related_name="consolidation_readings")
+    stage = models.ForeignKey(
+        ShearStage, on_delete=models.CASCADE, related_name="consolidation_readings"
+    )
     elapsed_min = models.FloatField(help_text="Time since the normal load was applied [min].")
-    settlement_mm = models.FloatField(help_text="Settlement since load applied, compression positive [mm].")
+    settlement_mm = models.FloatField(
+        help_text="Settlement since load applied, compression positive [mm]."
+    )
 
     class Meta:
         ordering = ["stage", "elapsed_min"]
         constraints = [
-            models.UniqueConstraint(fields=["stage", "elapsed_min"], name="consolidation_time_unique"),
-            models.CheckConstraint(name="consolidation_time_nonnegative", condition=Q(elapsed_min__gte=0)),
+            models.UniqueConstraint(
+                fields=["stage", "elapsed_min"], name="consolidation_time_unique"
+            ),
+            models.CheckConstraint(
+                name="consolidation_time_nonnegative", condition=Q(elapsed_min__gte=0)
+            ),
         ]
+
+    def __str__(self) -> str:
+        return f"{self.elapsed_min:g} min: {self.settlement_mm:.3f} mm"
 
 
 class ShearReading(models.Model):
@@ -184,13 +241,24 @@ class ShearReading(models.Model):
     seq = models.PositiveIntegerField(help_text="Reading number within the traverse.")
     elapsed_min = models.FloatField(help_text="Time since shearing started [min].")
     horizontal_mm = models.FloatField(help_text="Relative horizontal displacement [mm].")
-    vertical_mm = models.FloatField(help_text="Vertical displacement, dilation (upward) positive [mm].")
+    vertical_mm = models.FloatField(
+        help_text="Vertical displacement, dilation (upward) positive [mm]."
+    )
     force_reading = models.FloatField(help_text="Force device reading [div or N, see the stage].")
 
     class Meta:
         ordering = ["stage", "traverse", "seq"]
         constraints = [
-            models.UniqueConstraint(fields=["stage", "traverse", "seq"], name="shear_reading_unique"),
-            models.CheckConstraint(name="shear_reading_time_nonnegative", condition=Q(elapsed_min__gte=0)),
-            models.CheckConstraint(name="shear_reading_traverse_positive", condition=Q(traverse__gte=1)),
+            models.UniqueConstraint(
+                fields=["stage", "traverse", "seq"], name="shear_reading_unique"
+            ),
+            models.CheckConstraint(
+                name="shear_reading_time_nonnegative", condition=Q(elapsed_min__gte=0)
+            ),
+            models.CheckConstraint(
+                name="shear_reading_traverse_positive", condition=Q(traverse__gte=1)
+            ),
         ]
+
+    def __str__(self) -> str:
+        return f"traverse {self.traverse} #{self.seq}: x {self.horizontal_mm:.3f} mm, F {self.force_reading:g}"

@@ -36,28 +36,50 @@ class SampleStatus(models.TextChoices):
 
 # Allowed moves. ON_HOLD may return to any working state; DISPOSED is final.
 SAMPLE_TRANSITIONS: dict[str, frozenset[str]] = {
-    SampleStatus.RECEIVED: frozenset({SampleStatus.SCHEDULED, SampleStatus.ON_HOLD, SampleStatus.DISPOSED}),
-    SampleStatus.SCHEDULED: frozenset({SampleStatus.IN_TEST, SampleStatus.RECEIVED, SampleStatus.ON_HOLD}),
+    SampleStatus.RECEIVED: frozenset(
+        {SampleStatus.SCHEDULED, SampleStatus.ON_HOLD, SampleStatus.DISPOSED}
+    ),
+    SampleStatus.SCHEDULED: frozenset(
+        {SampleStatus.IN_TEST, SampleStatus.RECEIVED, SampleStatus.ON_HOLD}
+    ),
     SampleStatus.IN_TEST: frozenset({SampleStatus.TESTED, SampleStatus.ON_HOLD}),
-    SampleStatus.TESTED: frozenset({SampleStatus.REPORTED, SampleStatus.IN_TEST, SampleStatus.ON_HOLD}),
+    SampleStatus.TESTED: frozenset(
+        {SampleStatus.REPORTED, SampleStatus.IN_TEST, SampleStatus.ON_HOLD}
+    ),
     SampleStatus.REPORTED: frozenset({SampleStatus.DISPOSED}),
     SampleStatus.ON_HOLD: frozenset(
-        {SampleStatus.RECEIVED, SampleStatus.SCHEDULED, SampleStatus.IN_TEST, SampleStatus.TESTED, SampleStatus.DISPOSED}
+        {
+            SampleStatus.RECEIVED,
+            SampleStatus.SCHEDULED,
+            SampleStatus.IN_TEST,
+            SampleStatus.TESTED,
+            SampleStatus.DISPOSED,
+        }
     ),
     SampleStatus.DISPOSED: frozenset(),
 }
 # Moves that must carry a reason in the event note.
 TRANSITIONS_NEEDING_NOTE = frozenset({SampleStatus.ON_HOLD, SampleStatus.DISPOSED})
 OPEN_STATUSES = frozenset(
-    {SampleStatus.RECEIVED, SampleStatus.SCHEDULED, SampleStatus.IN_TEST, SampleStatus.TESTED, SampleStatus.ON_HOLD}
+    {
+        SampleStatus.RECEIVED,
+        SampleStatus.SCHEDULED,
+        SampleStatus.IN_TEST,
+        SampleStatus.TESTED,
+        SampleStatus.ON_HOLD,
+    }
 )
 
 
 class Sample(models.Model):
-    borehole = models.ForeignKey("testing.Borehole", on_delete=models.PROTECT, related_name="samples")
+    borehole = models.ForeignKey(
+        "testing.Borehole", on_delete=models.PROTECT, related_name="samples"
+    )
     reference = models.CharField(max_length=40, help_text="Sample reference (AGS SAMP_REF).")
     depth_top_m = models.DecimalField(max_digits=7, decimal_places=2, help_text="Depth to top [m].")
-    depth_base_m = models.DecimalField(max_digits=7, decimal_places=2, help_text="Depth to base [m].")
+    depth_base_m = models.DecimalField(
+        max_digits=7, decimal_places=2, help_text="Depth to base [m]."
+    )
     sample_type = models.CharField(max_length=4, choices=SampleType.choices)
     description = models.TextField(blank=True, help_text="Soil description as logged.")
     received_on = models.DateField()
@@ -66,7 +88,9 @@ class Sample(models.Model):
     )
     condition_on_receipt = models.CharField(max_length=200, blank=True)
     storage_location = models.CharField(max_length=80, blank=True)
-    due_on = models.DateField(null=True, blank=True, help_text="Date results are due to the client.")
+    due_on = models.DateField(
+        null=True, blank=True, help_text="Date results are due to the client."
+    )
     status = models.CharField(
         max_length=12, choices=SampleStatus.choices, default=SampleStatus.RECEIVED, editable=False
     )
@@ -75,11 +99,16 @@ class Sample(models.Model):
     class Meta:
         ordering = ["borehole", "depth_top_m", "reference"]
         constraints = [
-            models.UniqueConstraint(fields=["borehole", "reference"], name="sample_ref_unique_in_borehole"),
+            models.UniqueConstraint(
+                fields=["borehole", "reference"], name="sample_ref_unique_in_borehole"
+            ),
             models.CheckConstraint(name="sample_reference_not_blank", condition=~Q(reference="")),
-            models.CheckConstraint(name="sample_depth_top_nonnegative", condition=Q(depth_top_m__gte=0)),
             models.CheckConstraint(
-                name="sample_depth_base_not_above_top", condition=Q(depth_base_m__gte=F("depth_top_m"))
+                name="sample_depth_top_nonnegative", condition=Q(depth_top_m__gte=0)
+            ),
+            models.CheckConstraint(
+                name="sample_depth_base_not_above_top",
+                condition=Q(depth_base_m__gte=F("depth_top_m")),
             ),
             models.CheckConstraint(
                 name="sample_status_valid", condition=Q(status__in=SampleStatus.values)
@@ -108,7 +137,9 @@ class SampleEvent(models.Model):
     class Meta:
         ordering = ["sample", "at", "id"]
         constraints = [
-            models.CheckConstraint(name="sample_event_moves", condition=~Q(from_status=F("to_status"))),
+            models.CheckConstraint(
+                name="sample_event_moves", condition=~Q(from_status=F("to_status"))
+            ),
         ]
 
     def __str__(self) -> str:

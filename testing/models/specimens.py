@@ -29,11 +29,21 @@ class Specimen(models.Model):
     preparation = models.CharField(max_length=12, choices=Preparation.choices)
     preparation_notes = models.TextField(blank=True)
     target_dry_density_mg_m3 = models.DecimalField(
-        max_digits=5, decimal_places=3, null=True, blank=True, help_text="Target dry density [Mg/m³]."
+        max_digits=5,
+        decimal_places=3,
+        null=True,
+        blank=True,
+        help_text="Target dry density [Mg/m³].",
     )
-    shape = models.CharField(max_length=8, choices=SpecimenShape.choices, default=SpecimenShape.SQUARE)
-    length_mm = models.FloatField(null=True, blank=True, help_text="Length in the shear direction [mm].")
-    width_mm = models.FloatField(null=True, blank=True, help_text="Width across the shear direction [mm].")
+    shape = models.CharField(
+        max_length=8, choices=SpecimenShape.choices, default=SpecimenShape.SQUARE
+    )
+    length_mm = models.FloatField(
+        null=True, blank=True, help_text="Length in the shear direction [mm]."
+    )
+    width_mm = models.FloatField(
+        null=True, blank=True, help_text="Width across the shear direction [mm]."
+    )
     diameter_mm = models.FloatField(null=True, blank=True, help_text="Diameter [mm].")
     height_mm = models.FloatField(help_text="Initial height [mm].")
     initial_mass_g = models.FloatField(help_text="Initial wet mass [g].")
@@ -52,15 +62,21 @@ class Specimen(models.Model):
     class Meta:
         ordering = ["sample", "reference"]
         constraints = [
-            models.UniqueConstraint(fields=["sample", "reference"], name="specimen_ref_unique_in_sample"),
+            models.UniqueConstraint(
+                fields=["sample", "reference"], name="specimen_ref_unique_in_sample"
+            ),
             models.CheckConstraint(name="specimen_reference_not_blank", condition=~Q(reference="")),
             models.CheckConstraint(name="specimen_height_positive", condition=Q(height_mm__gt=0)),
-            models.CheckConstraint(name="specimen_initial_mass_positive", condition=Q(initial_mass_g__gt=0)),
             models.CheckConstraint(
-                name="specimen_final_mass_positive", condition=Q(final_mass_g__isnull=True) | Q(final_mass_g__gt=0)
+                name="specimen_initial_mass_positive", condition=Q(initial_mass_g__gt=0)
             ),
             models.CheckConstraint(
-                name="specimen_dry_mass_positive", condition=Q(dry_mass_g__isnull=True) | Q(dry_mass_g__gt=0)
+                name="specimen_final_mass_positive",
+                condition=Q(final_mass_g__isnull=True) | Q(final_mass_g__gt=0),
+            ),
+            models.CheckConstraint(
+                name="specimen_dry_mass_positive",
+                condition=Q(dry_mass_g__isnull=True) | Q(dry_mass_g__gt=0),
             ),
             models.CheckConstraint(
                 name="specimen_particle_size_positive",
@@ -74,12 +90,23 @@ class Specimen(models.Model):
             models.CheckConstraint(
                 name="specimen_square_dimensions",
                 condition=~Q(shape=SpecimenShape.SQUARE)
-                | Q(length_mm__isnull=False, width_mm__isnull=False, length_mm__gt=0, width_mm__gt=0, diameter_mm__isnull=True),
+                | Q(
+                    length_mm__isnull=False,
+                    width_mm__isnull=False,
+                    length_mm__gt=0,
+                    width_mm__gt=0,
+                    diameter_mm__isnull=True,
+                ),
             ),
             models.CheckConstraint(
                 name="specimen_circular_dimensions",
                 condition=~Q(shape=SpecimenShape.CIRCULAR)
-                | Q(diameter_mm__isnull=False, diameter_mm__gt=0, length_mm__isnull=True, width_mm__isnull=True),
+                | Q(
+                    diameter_mm__isnull=False,
+                    diameter_mm__gt=0,
+                    length_mm__isnull=True,
+                    width_mm__isnull=True,
+                ),
             ),
             models.CheckConstraint(
                 name="specimen_recompacted_has_target",
@@ -98,5 +125,6 @@ class Specimen(models.Model):
         if self.shape == SpecimenShape.CIRCULAR:
             assert self.diameter_mm is not None
             return 3.141592653589793 * self.diameter_mm**2 / 4.0
-        assert self.length_mm is not None and self.width_mm is not None
+        assert self.length_mm is not None
+        assert self.width_mm is not None
         return self.length_mm * self.width_mm

@@ -5,7 +5,7 @@ from __future__ import annotations
 from collections.abc import Iterable
 
 from django.contrib.auth import get_user_model
-from django.contrib.auth.models import AbstractUser
+from django.contrib.auth.models import User
 from django.db import transaction
 
 from testing.models import LabProfile, Organisation, Role
@@ -23,7 +23,7 @@ def lab_user_create(
     last_name: str = "",
     email: str = "",
     job_title: str = "",
-) -> AbstractUser:
+) -> User:
     """Create a user and their lab profile. Client users need an organisation and no staff role."""
     role_set = set(roles)
     if Role.CLIENT in role_set:
@@ -37,7 +37,11 @@ def lab_user_create(
         raise ServiceError("Give the user at least one role.")
     user_model = get_user_model()
     user = user_model.objects.create_user(
-        username=username, password=password, first_name=first_name, last_name=last_name, email=email
+        username=username,
+        password=password,
+        first_name=first_name,
+        last_name=last_name,
+        email=email,
     )
     LabProfile.objects.create(
         user=user,
@@ -48,4 +52,4 @@ def lab_user_create(
         organisation=organisation,
         job_title=job_title,
     )
-    return user  # type: ignore[return-value]
+    return user

@@ -14,7 +14,7 @@ from decimal import Decimal
 
 from django.conf import settings
 from django.contrib.auth import get_user_model
-from django.contrib.auth.models import AbstractUser
+from django.contrib.auth.models import User
 from django.db import transaction
 from django.utils import timezone
 
@@ -62,27 +62,153 @@ _PATHS: dict[str, list[SampleStatus]] = {
     SampleStatus.SCHEDULED: [SampleStatus.SCHEDULED],
     SampleStatus.IN_TEST: [SampleStatus.SCHEDULED, SampleStatus.IN_TEST],
     SampleStatus.TESTED: [SampleStatus.SCHEDULED, SampleStatus.IN_TEST, SampleStatus.TESTED],
-    SampleStatus.REPORTED: [SampleStatus.SCHEDULED, SampleStatus.IN_TEST, SampleStatus.TESTED, SampleStatus.REPORTED],
+    SampleStatus.REPORTED: [
+        SampleStatus.SCHEDULED,
+        SampleStatus.IN_TEST,
+        SampleStatus.TESTED,
+        SampleStatus.REPORTED,
+    ],
     SampleStatus.ON_HOLD: [SampleStatus.ON_HOLD],
     SampleStatus.DISPOSED: [
-        SampleStatus.SCHEDULED, SampleStatus.IN_TEST, SampleStatus.TESTED, SampleStatus.REPORTED, SampleStatus.DISPOSED,
+        SampleStatus.SCHEDULED,
+        SampleStatus.IN_TEST,
+        SampleStatus.TESTED,
+        SampleStatus.REPORTED,
+        SampleStatus.DISPOSED,
     ],
 }
 
 _SAMPLES = [
-    ("BH101", "B3", SampleType.BULK, "2.00", "2.50", 54, SampleStatus.DISPOSED, "Brown slightly gravelly fine to medium SAND."),
-    ("BH101", "U5", SampleType.UNDISTURBED, "4.00", "4.45", 49, SampleStatus.REPORTED, "Firm grey slightly sandy CLAY."),
-    ("BH102", "U2", SampleType.UNDISTURBED, "1.50", "1.95", 45, SampleStatus.REPORTED, "Firm brown mottled grey CLAY."),
-    ("BH103", "B6", SampleType.BULK, "5.00", "5.50", 41, SampleStatus.REPORTED, "Dense brown fine to medium SAND."),
-    ("BH101", "B7", SampleType.BULK, "6.00", "6.50", 36, SampleStatus.TESTED, "Dense orange-brown fine to coarse SAND."),
-    ("BH102", "U4", SampleType.UNDISTURBED, "3.00", "3.45", 31, SampleStatus.TESTED, "Firm to stiff grey silty CLAY."),
-    ("BH103", "U3", SampleType.UNDISTURBED, "2.50", "2.95", 27, SampleStatus.ON_HOLD, "Soft grey organic CLAY."),
-    ("BH102", "B8", SampleType.BULK, "7.50", "8.00", 20, SampleStatus.IN_TEST, "Medium dense brown gravelly SAND."),
-    ("BH103", "U8", SampleType.UNDISTURBED, "8.00", "8.45", 16, SampleStatus.IN_TEST, "Stiff grey CLAY with rare gravel."),
-    ("BH101", "U9", SampleType.UNDISTURBED, "9.00", "9.45", 11, SampleStatus.SCHEDULED, "Stiff dark grey CLAY."),
-    ("BH102", "D10", SampleType.SMALL_DISTURBED, "10.00", "10.30", 8, SampleStatus.SCHEDULED, "Grey sandy CLAY."),
-    ("BH103", "B11", SampleType.BULK, "11.00", "11.50", 4, SampleStatus.RECEIVED, "Brown clayey SAND."),
-    ("BH101", "U12", SampleType.UNDISTURBED, "12.00", "12.45", 1, SampleStatus.RECEIVED, "Very stiff grey CLAY."),
+    (
+        "BH101",
+        "B3",
+        SampleType.BULK,
+        "2.00",
+        "2.50",
+        54,
+        SampleStatus.DISPOSED,
+        "Brown slightly gravelly fine to medium SAND.",
+    ),
+    (
+        "BH101",
+        "U5",
+        SampleType.UNDISTURBED,
+        "4.00",
+        "4.45",
+        49,
+        SampleStatus.REPORTED,
+        "Firm grey slightly sandy CLAY.",
+    ),
+    (
+        "BH102",
+        "U2",
+        SampleType.UNDISTURBED,
+        "1.50",
+        "1.95",
+        45,
+        SampleStatus.REPORTED,
+        "Firm brown mottled grey CLAY.",
+    ),
+    (
+        "BH103",
+        "B6",
+        SampleType.BULK,
+        "5.00",
+        "5.50",
+        41,
+        SampleStatus.REPORTED,
+        "Dense brown fine to medium SAND.",
+    ),
+    (
+        "BH101",
+        "B7",
+        SampleType.BULK,
+        "6.00",
+        "6.50",
+        36,
+        SampleStatus.TESTED,
+        "Dense orange-brown fine to coarse SAND.",
+    ),
+    (
+        "BH102",
+        "U4",
+        SampleType.UNDISTURBED,
+        "3.00",
+        "3.45",
+        31,
+        SampleStatus.TESTED,
+        "Firm to stiff grey silty CLAY.",
+    ),
+    (
+        "BH103",
+        "U3",
+        SampleType.UNDISTURBED,
+        "2.50",
+        "2.95",
+        27,
+        SampleStatus.ON_HOLD,
+        "Soft grey organic CLAY.",
+    ),
+    (
+        "BH102",
+        "B8",
+        SampleType.BULK,
+        "7.50",
+        "8.00",
+        20,
+        SampleStatus.IN_TEST,
+        "Medium dense brown gravelly SAND.",
+    ),
+    (
+        "BH103",
+        "U8",
+        SampleType.UNDISTURBED,
+        "8.00",
+        "8.45",
+        16,
+        SampleStatus.IN_TEST,
+        "Stiff grey CLAY with rare gravel.",
+    ),
+    (
+        "BH101",
+        "U9",
+        SampleType.UNDISTURBED,
+        "9.00",
+        "9.45",
+        11,
+        SampleStatus.SCHEDULED,
+        "Stiff dark grey CLAY.",
+    ),
+    (
+        "BH102",
+        "D10",
+        SampleType.SMALL_DISTURBED,
+        "10.00",
+        "10.30",
+        8,
+        SampleStatus.SCHEDULED,
+        "Grey sandy CLAY.",
+    ),
+    (
+        "BH103",
+        "B11",
+        SampleType.BULK,
+        "11.00",
+        "11.50",
+        4,
+        SampleStatus.RECEIVED,
+        "Brown clayey SAND.",
+    ),
+    (
+        "BH101",
+        "U12",
+        SampleType.UNDISTURBED,
+        "12.00",
+        "12.45",
+        1,
+        SampleStatus.RECEIVED,
+        "Very stiff grey CLAY.",
+    ),
 ]
 
 # Two complete test sets: the dense sand (recompacted, proving ring) and the firm clay (undisturbed, load cell).
@@ -94,16 +220,23 @@ _LEVER_RATIO = 10.0
 _RING_CONSTANT_N_PER_DIV = 1.52
 
 
-def _user(username: str, role: Role, password: str, first: str, last: str, org: Organisation | None = None) -> AbstractUser:
+def _user(
+    username: str, role: Role, password: str, first: str, last: str, org: Organisation | None = None
+) -> User:
     user_model = get_user_model()
     existing = user_model.objects.filter(username=username).first()
     if existing is not None:
         existing.set_password(password)
         existing.save(update_fields=["password"])
         LabProfile.objects.get_or_create(user=existing)
-        return existing  # type: ignore[return-value]
+        return existing
     return lab_user_create(
-        username=username, password=password, roles=[role], organisation=org, first_name=first, last_name=last,
+        username=username,
+        password=password,
+        roles=[role],
+        organisation=org,
+        first_name=first,
+        last_name=last,
         email=f"{username}@example.invalid",
     )
 
@@ -122,14 +255,20 @@ def load_demo(*, now: datetime | None = None) -> bool:
     password = settings.TAULINE_DEMO_PASSWORD
     org_a, _ = Organisation.objects.get_or_create(
         code="fenwick-brae",
-        defaults={"name": "Fenwick Brae Consulting Engineers", "contact_name": "R. Okafor",
-                  "contact_email": "lab-results@fenwick-brae.example.invalid",
-                  "address": "4 Tannery Wynd, Harlow Moss, Northshire"},
+        defaults={
+            "name": "Fenwick Brae Consulting Engineers",
+            "contact_name": "R. Okafor",
+            "contact_email": "lab-results@fenwick-brae.example.invalid",
+            "address": "4 Tannery Wynd, Harlow Moss, Northshire",
+        },
     )
     org_b, _ = Organisation.objects.get_or_create(
         code="saltcoats-quay",
-        defaults={"name": "Saltcoats Quay Developments", "contact_name": "M. Lindqvist",
-                  "contact_email": "engineering@saltcoats-quay.example.invalid"},
+        defaults={
+            "name": "Saltcoats Quay Developments",
+            "contact_name": "M. Lindqvist",
+            "contact_email": "engineering@saltcoats-quay.example.invalid",
+        },
     )
     manager = _user("manager", Role.MANAGER, password, "Morven", "Ashby")
     technician = _user("technician", Role.TECHNICIAN, password, "Tomasz", "Reid")
@@ -141,59 +280,105 @@ def load_demo(*, now: datetime | None = None) -> bool:
         return False
 
     project = Project.objects.create(
-        organisation=org_a, reference=DEMO_PROJECT_REFERENCE, client_reference="FB-4471",
-        name="Harlow Moss link road — ground investigation", site_name="Harlow Moss link road",
-        site_location="Harlow Moss, Northshire", client_engineer="R. Okafor",
+        organisation=org_a,
+        reference=DEMO_PROJECT_REFERENCE,
+        client_reference="FB-4471",
+        name="Harlow Moss link road — ground investigation",
+        site_name="Harlow Moss link road",
+        site_location="Harlow Moss, Northshire",
+        client_engineer="R. Okafor",
     )
     boreholes = {
-        ref: Borehole.objects.create(project=project, reference=ref, ground_level_m=Decimal(gl),
-                                     final_depth_m=Decimal("15.00"), drilled_on=(now - timedelta(days=60)).date())
+        ref: Borehole.objects.create(
+            project=project,
+            reference=ref,
+            ground_level_m=Decimal(gl),
+            final_depth_m=Decimal("15.00"),
+            drilled_on=(now - timedelta(days=60)).date(),
+        )
         for ref, gl in (("BH101", "42.35"), ("BH102", "41.80"), ("BH103", "43.10"))
     }
     samples: dict[str, Sample] = {}
     for bh, ref, kind, top, base, days_ago, final, description in _SAMPLES:
         received_at = now - timedelta(days=days_ago, hours=3)
         sample = sample_receive(
-            user=technician, borehole=boreholes[bh], reference=ref, depth_top_m=Decimal(top),
-            depth_base_m=Decimal(base), sample_type=kind, description=description, at=received_at,
-            received_on=received_at.date(), condition_on_receipt="Sealed, labelled, intact",
+            user=technician,
+            borehole=boreholes[bh],
+            reference=ref,
+            depth_top_m=Decimal(top),
+            depth_base_m=Decimal(base),
+            sample_type=kind,
+            description=description,
+            at=received_at,
+            received_on=received_at.date(),
+            condition_on_receipt="Sealed, labelled, intact",
             storage_location=f"Store A / rack {days_ago % 7 + 1}",
         )
         for step, status in enumerate(_PATHS[final], start=1):
-            note = {SampleStatus.ON_HOLD: "Awaiting client instruction on test schedule.",
-                    SampleStatus.DISPOSED: "Disposed after the retention period agreed with the client."}.get(status, "")
+            note = {
+                SampleStatus.ON_HOLD: "Awaiting client instruction on test schedule.",
+                SampleStatus.DISPOSED: "Disposed after the retention period agreed with the client.",
+            }.get(status, "")
             at = received_at + timedelta(days=2 * step, hours=step)
-            sample_transition(sample=sample, to_status=status, user=manager if note else technician, note=note,
-                              at=min(at, now))
+            sample_transition(
+                sample=sample,
+                to_status=status,
+                user=manager if note else technician,
+                note=note,
+                at=min(at, now),
+            )
         samples[ref] = sample
 
     _sand_set(project=project, sample=samples["B7"], user=technician, now=now)
     _clay_set(project=project, sample=samples["U4"], user=technician, now=now)
 
     project_b = Project.objects.create(
-        organisation=org_b, reference="TL-2026-019", name="Saltcoats quay wall — sea-bed sampling",
-        site_name="Saltcoats quay", site_location="Saltcoats harbour", client_engineer="M. Lindqvist",
+        organisation=org_b,
+        reference="TL-2026-019",
+        name="Saltcoats quay wall — sea-bed sampling",
+        site_name="Saltcoats quay",
+        site_location="Saltcoats harbour",
+        client_engineer="M. Lindqvist",
     )
-    bh_b = Borehole.objects.create(project=project_b, reference="SQ1", final_depth_m=Decimal("8.00"))
+    bh_b = Borehole.objects.create(
+        project=project_b, reference="SQ1", final_depth_m=Decimal("8.00")
+    )
     for ref, top, days_ago in (("U1", "2.00", 12), ("U2", "4.00", 5)):
         at = now - timedelta(days=days_ago)
-        sample_receive(user=technician, borehole=bh_b, reference=ref, depth_top_m=Decimal(top),
-                       depth_base_m=Decimal(top) + Decimal("0.45"), sample_type=SampleType.UNDISTURBED,
-                       description="Soft grey silty CLAY.", at=at, received_on=at.date())
+        sample_receive(
+            user=technician,
+            borehole=bh_b,
+            reference=ref,
+            depth_top_m=Decimal(top),
+            depth_base_m=Decimal(top) + Decimal("0.45"),
+            sample_type=SampleType.UNDISTURBED,
+            description="Soft grey silty CLAY.",
+            at=at,
+            received_on=at.date(),
+        )
     return True
 
 
-def _specimen_masses(height_mm: float, dry_density: float, water_content: float) -> tuple[float, float]:
+def _specimen_masses(
+    height_mm: float, dry_density: float, water_content: float
+) -> tuple[float, float]:
     volume_cm3 = _BOX_MM * _BOX_MM * height_mm / 1000.0
     dry_g = dry_density * volume_cm3
     return round(dry_g * (1 + water_content), 2), round(dry_g, 2)
 
 
-def _sand_set(*, project: Project, sample: Sample, user: AbstractUser, now: datetime) -> DirectShearTest:
+def _sand_set(*, project: Project, sample: Sample, user: User, now: datetime) -> DirectShearTest:
     params = demo_parameters()["dense_sand"]
     test = shear_test_create(
-        user=user, project=project, reference="DS-01", method="bs-1377-7", apparatus="SB-2 (60 mm)",
-        box_length_mm=_BOX_MM, box_width_mm=_BOX_MM, condition="submerged", requested_on=(now - timedelta(days=34)).date(),
+        user=user,
+        project=project,
+        reference="DS-01",
+        method="bs-1377-7",
+        apparatus="SB-2 (60 mm)",
+        box_length_mm=_BOX_MM,
+        box_width_mm=_BOX_MM,
+        condition="submerged",
+        requested_on=(now - timedelta(days=34)).date(),
         due_on=(now - timedelta(days=34) + timedelta(days=21)).date(),
         instructions="Peak and ultimate strength, recompacted to 95 % of maximum dry density.",
     )
@@ -201,26 +386,60 @@ def _sand_set(*, project: Project, sample: Sample, user: AbstractUser, now: date
         height = 20.0
         initial, dry = _specimen_masses(height, 1.74 + 0.005 * number, 0.11)
         specimen = specimen_create(
-            user=user, sample=sample, reference=f"S{number}", depth_top_m=sample.depth_top_m, preparation="recompacted",
-            target_dry_density_mg_m3=Decimal("1.750"), length_mm=_BOX_MM, width_mm=_BOX_MM, height_mm=height,
-            initial_mass_g=initial, dry_mass_g=dry, final_mass_g=round(dry * 1.19, 2), max_particle_size_mm=2.0,
-            particle_density_mg_m3=2.65, particle_density_assumed=True, description=sample.description,
+            user=user,
+            sample=sample,
+            reference=f"S{number}",
+            depth_top_m=sample.depth_top_m,
+            preparation="recompacted",
+            target_dry_density_mg_m3=Decimal("1.750"),
+            length_mm=_BOX_MM,
+            width_mm=_BOX_MM,
+            height_mm=height,
+            initial_mass_g=initial,
+            dry_mass_g=dry,
+            final_mass_g=round(dry * 1.19, 2),
+            max_particle_size_mm=2.0,
+            particle_density_mg_m3=2.65,
+            particle_density_assumed=True,
+            description=sample.description,
         )
         stage = stage_create(
-            user=user, test=test, specimen=specimen, stage_number=number, direct_mass_kg=_DIRECT_MASS_KG,
-            hanger_mass_kg=_HANGER_MASS_KG, weights_mass_kg=_weights_for(sigma), lever_ratio=_LEVER_RATIO,
-            force_unit=ForceUnit.DIVISIONS, force_factor_n_per_unit=_RING_CONSTANT_N_PER_DIV,
+            user=user,
+            test=test,
+            specimen=specimen,
+            stage_number=number,
+            direct_mass_kg=_DIRECT_MASS_KG,
+            hanger_mass_kg=_HANGER_MASS_KG,
+            weights_mass_kg=_weights_for(sigma),
+            lever_ratio=_LEVER_RATIO,
+            force_unit=ForceUnit.DIVISIONS,
+            force_factor_n_per_unit=_RING_CONSTANT_N_PER_DIV,
             rate_mm_per_min=params.rate_mm_per_min,
         )
-        _store_readings(stage, "dense_sand", sigma, height, seed=100 + number, ring=_RING_CONSTANT_N_PER_DIV, user=user)
+        _store_readings(
+            stage,
+            "dense_sand",
+            sigma,
+            height,
+            seed=100 + number,
+            ring=_RING_CONSTANT_N_PER_DIV,
+            user=user,
+        )
     return test
 
 
-def _clay_set(*, project: Project, sample: Sample, user: AbstractUser, now: datetime) -> DirectShearTest:
+def _clay_set(*, project: Project, sample: Sample, user: User, now: datetime) -> DirectShearTest:
     params = demo_parameters()["clay"]
     test = shear_test_create(
-        user=user, project=project, reference="DS-02", method="iso-17892-10", apparatus="SB-4 (60 mm, load cell)",
-        box_length_mm=_BOX_MM, box_width_mm=_BOX_MM, condition="submerged", requested_on=(now - timedelta(days=30)).date(),
+        user=user,
+        project=project,
+        reference="DS-02",
+        method="iso-17892-10",
+        apparatus="SB-4 (60 mm, load cell)",
+        box_length_mm=_BOX_MM,
+        box_width_mm=_BOX_MM,
+        condition="submerged",
+        requested_on=(now - timedelta(days=30)).date(),
         due_on=(now - timedelta(days=30) + timedelta(days=21)).date(),
         instructions="Drained peak strength on undisturbed specimens.",
     )
@@ -228,44 +447,85 @@ def _clay_set(*, project: Project, sample: Sample, user: AbstractUser, now: date
         height = 20.0
         initial, dry = _specimen_masses(height, 1.52 - 0.004 * number, 0.29)
         specimen = specimen_create(
-            user=user, sample=sample, reference=f"S{number}", depth_top_m=sample.depth_top_m + Decimal("0.05") * number,
-            preparation="undisturbed", length_mm=_BOX_MM, width_mm=_BOX_MM, height_mm=height, initial_mass_g=initial,
-            dry_mass_g=dry, final_mass_g=round(dry * 1.27, 2), max_particle_size_mm=0.5, particle_density_mg_m3=2.70,
-            particle_density_assumed=False, description=sample.description,
+            user=user,
+            sample=sample,
+            reference=f"S{number}",
+            depth_top_m=sample.depth_top_m + Decimal("0.05") * number,
+            preparation="undisturbed",
+            length_mm=_BOX_MM,
+            width_mm=_BOX_MM,
+            height_mm=height,
+            initial_mass_g=initial,
+            dry_mass_g=dry,
+            final_mass_g=round(dry * 1.27, 2),
+            max_particle_size_mm=0.5,
+            particle_density_mg_m3=2.70,
+            particle_density_assumed=False,
+            description=sample.description,
         )
         stage = stage_create(
-            user=user, test=test, specimen=specimen, stage_number=number, direct_mass_kg=_DIRECT_MASS_KG,
-            hanger_mass_kg=_HANGER_MASS_KG, weights_mass_kg=_weights_for(sigma), lever_ratio=_LEVER_RATIO,
-            force_unit=ForceUnit.NEWTON, force_factor_n_per_unit=1.0, rate_mm_per_min=params.rate_mm_per_min,
+            user=user,
+            test=test,
+            specimen=specimen,
+            stage_number=number,
+            direct_mass_kg=_DIRECT_MASS_KG,
+            hanger_mass_kg=_HANGER_MASS_KG,
+            weights_mass_kg=_weights_for(sigma),
+            lever_ratio=_LEVER_RATIO,
+            force_unit=ForceUnit.NEWTON,
+            force_factor_n_per_unit=1.0,
+            rate_mm_per_min=params.rate_mm_per_min,
         )
         _store_readings(stage, "clay", sigma, height, seed=200 + number, ring=None, user=user)
     return test
 
 
 def _store_readings(
-    stage: ShearStage, soil: str, sigma: float, height: float, *, seed: int, ring: float | None, user: AbstractUser
+    stage: ShearStage,
+    soil: str,
+    sigma: float,
+    height: float,
+    *,
+    seed: int,
+    ring: float | None,
+    user: User,
 ) -> None:
     params = demo_parameters()[soil]  # type: ignore[index]
     consolidation = consolidation_readings(
-        seed=seed, normal_stress_kpa=sigma, height_mm=height, t50_min=params.t50_min,
+        seed=seed,
+        normal_stress_kpa=sigma,
+        height_mm=height,
+        t50_min=params.t50_min,
         final_settlement_mm=params.settlement_per_100_kpa_mm * sigma / 100.0,
     )
     shear = shear_readings(
-        seed=seed, soil=params.soil, normal_stress_kpa=sigma, rate_mm_per_min=params.rate_mm_per_min,
-        phi_peak_deg=params.phi_peak_deg, phi_cv_deg=params.phi_cv_deg, cohesion_kpa=params.cohesion_kpa,
-        displacement_to_peak_mm=params.displacement_to_peak_mm, max_dilation_deg=params.max_dilation_deg,
-        contraction_mm=params.contraction_mm, ring_constant_n_per_div=ring,
+        seed=seed,
+        soil=params.soil,
+        normal_stress_kpa=sigma,
+        rate_mm_per_min=params.rate_mm_per_min,
+        phi_peak_deg=params.phi_peak_deg,
+        phi_cv_deg=params.phi_cv_deg,
+        cohesion_kpa=params.cohesion_kpa,
+        displacement_to_peak_mm=params.displacement_to_peak_mm,
+        max_dilation_deg=params.max_dilation_deg,
+        contraction_mm=params.contraction_mm,
+        ring_constant_n_per_div=ring,
     )
     force = shear.ring_divisions if shear.ring_divisions is not None else shear.shear_force_n
     rows = [
         (1, i, float(t), float(x), float(y), float(f))
         for i, (t, x, y, f) in enumerate(
-            zip(shear.elapsed_min, shear.horizontal_mm, shear.vertical_mm, force, strict=True), start=1
+            zip(shear.elapsed_min, shear.horizontal_mm, shear.vertical_mm, force, strict=True),
+            start=1,
         )
     ]
     stage_readings_store(
-        user=user, stage=stage,
-        consolidation=[(float(t), float(s)) for t, s in zip(consolidation.elapsed_min, consolidation.settlement_mm, strict=True)],
+        user=user,
+        stage=stage,
+        consolidation=[
+            (float(t), float(s))
+            for t, s in zip(consolidation.elapsed_min, consolidation.settlement_mm, strict=True)
+        ],
         shear=rows,
     )
     assert math.isfinite(rows[-1][3])

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from datetime import datetime
 
-from django.contrib.auth.models import AbstractBaseUser
+from django.contrib.auth.models import User
 from django.db import transaction
 from django.utils import timezone
 
@@ -18,7 +18,7 @@ def sample_transition(
     *,
     sample: Sample,
     to_status: SampleStatus | str,
-    user: AbstractBaseUser,
+    user: User,
     note: str = "",
     at: datetime | None = None,
 ) -> SampleEvent:
@@ -38,7 +38,10 @@ def sample_transition(
         locked = Sample.objects.select_for_update().get(pk=sample.pk)
         current = SampleStatus(locked.status)
         if target not in SAMPLE_TRANSITIONS[current]:
-            allowed = ", ".join(SampleStatus(s).label for s in sorted(SAMPLE_TRANSITIONS[current])) or "none"
+            allowed = (
+                ", ".join(SampleStatus(s).label for s in sorted(SAMPLE_TRANSITIONS[current]))
+                or "none"
+            )
             raise InvalidTransition(
                 f"Sample {locked.reference} is {current.label.lower()}; it cannot move to "
                 f"{target.label.lower()}. Allowed next: {allowed}."

@@ -7,21 +7,29 @@ from decimal import Decimal
 from typing import Any
 
 from django.conf import settings
-from django.contrib.auth.models import AbstractBaseUser
+from django.contrib.auth.models import User
 from django.db import transaction
 from django.utils import timezone
 
 from testing import access
-from testing.models import Borehole, Organisation, Project, Sample, SampleEvent, SampleStatus, Specimen
+from testing.models import (
+    Borehole,
+    Organisation,
+    Project,
+    Sample,
+    SampleEvent,
+    SampleStatus,
+    Specimen,
+)
 from testing.services.errors import NotAllowed
 
 
-def _require_records_role(user: AbstractBaseUser) -> None:
+def _require_records_role(user: User) -> None:
     if not access.can_receive_samples(user):
         raise NotAllowed("Only technicians and the lab manager can create lab records.")
 
 
-def organisation_create(*, user: AbstractBaseUser, name: str, code: str, **fields: Any) -> Organisation:
+def organisation_create(*, user: User, name: str, code: str, **fields: Any) -> Organisation:
     if not access.can_manage(user):
         raise NotAllowed("Only the lab manager can register a client organisation.")
     organisation = Organisation(name=name, code=code, **fields)
@@ -31,7 +39,7 @@ def organisation_create(*, user: AbstractBaseUser, name: str, code: str, **field
 
 
 def project_create(
-    *, user: AbstractBaseUser, organisation: Organisation, reference: str, name: str, **fields: Any
+    *, user: User, organisation: Organisation, reference: str, name: str, **fields: Any
 ) -> Project:
     if not access.can_manage(user):
         raise NotAllowed("Only the lab manager can open a project.")
@@ -41,7 +49,7 @@ def project_create(
     return project
 
 
-def borehole_create(*, user: AbstractBaseUser, project: Project, reference: str, **fields: Any) -> Borehole:
+def borehole_create(*, user: User, project: Project, reference: str, **fields: Any) -> Borehole:
     _require_records_role(user)
     borehole = Borehole(project=project, reference=reference, **fields)
     borehole.full_clean()
@@ -51,7 +59,7 @@ def borehole_create(*, user: AbstractBaseUser, project: Project, reference: str,
 
 def sample_receive(
     *,
-    user: AbstractBaseUser,
+    user: User,
     borehole: Borehole,
     reference: str,
     depth_top_m: Decimal,
@@ -87,12 +95,17 @@ def sample_receive(
     with transaction.atomic():
         sample.save()
         SampleEvent.objects.create(
-            sample=sample, at=moment, by=user, from_status="", to_status=SampleStatus.RECEIVED, note="Logged in."
+            sample=sample,
+            at=moment,
+            by=user,
+            from_status="",
+            to_status=SampleStatus.RECEIVED,
+            note="Logged in.",
         )
     return sample
 
 
-def specimen_create(*, user: AbstractBaseUser, sample: Sample, reference: str, **fields: Any) -> Specimen:
+def specimen_create(*, user: User, sample: Sample, reference: str, **fields: Any) -> Specimen:
     _require_records_role(user)
     specimen = Specimen(sample=sample, reference=reference, **fields)
     specimen.full_clean()

@@ -5,7 +5,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 from typing import Any
 
-from django.contrib.auth.models import AbstractBaseUser
+from django.contrib.auth.models import User
 from django.db import transaction
 
 from testing import access
@@ -21,24 +21,33 @@ from testing.models.direct_shear import DEFAULT_EDITIONS, MethodProfile
 from testing.services.errors import NotAllowed, ServiceError
 
 
-def _require_technician(user: AbstractBaseUser) -> None:
+def _require_technician(user: User) -> None:
     if not access.can_enter_readings(user):
-        raise NotAllowed("Only technicians and the lab manager can set up tests and enter readings.")
+        raise NotAllowed(
+            "Only technicians and the lab manager can set up tests and enter readings."
+        )
 
 
 def shear_test_create(
-    *, user: AbstractBaseUser, project: Project, reference: str, method: str, **fields: Any
+    *, user: User, project: Project, reference: str, method: str, **fields: Any
 ) -> DirectShearTest:
     _require_technician(user)
     fields.setdefault("method_edition", DEFAULT_EDITIONS[MethodProfile(method)])
-    test = DirectShearTest(project=project, reference=reference, method=method, created_by=user, **fields)
+    test = DirectShearTest(
+        project=project, reference=reference, method=method, created_by=user, **fields
+    )
     test.full_clean()
     test.save()
     return test
 
 
 def stage_create(
-    *, user: AbstractBaseUser, test: DirectShearTest, specimen: Specimen, stage_number: int, **fields: Any
+    *,
+    user: User,
+    test: DirectShearTest,
+    specimen: Specimen,
+    stage_number: int,
+    **fields: Any,
 ) -> ShearStage:
     _require_technician(user)
     if specimen.sample.borehole.project_id != test.project_id:
@@ -53,7 +62,7 @@ def stage_create(
 
 def stage_readings_store(
     *,
-    user: AbstractBaseUser,
+    user: User,
     stage: ShearStage,
     consolidation: Sequence[tuple[float, float]] = (),
     shear: Sequence[tuple[int, int, float, float, float, float]] = (),
@@ -70,13 +79,22 @@ def stage_readings_store(
         ConsolidationReading.objects.filter(stage=stage).delete()
         ShearReading.objects.filter(stage=stage).delete()
         ConsolidationReading.objects.bulk_create(
-            [ConsolidationReading(stage=stage, elapsed_min=t, settlement_mm=s) for t, s in consolidation],
+            [
+                ConsolidationReading(stage=stage, elapsed_min=t, settlement_mm=s)
+                for t, s in consolidation
+            ],
             batch_size=2000,
         )
         ShearReading.objects.bulk_create(
             [
                 ShearReading(
-                    stage=stage, traverse=tr, seq=seq, elapsed_min=t, horizontal_mm=x, vertical_mm=y, force_reading=f
+                    stage=stage,
+                    traverse=tr,
+                    seq=seq,
+                    elapsed_min=t,
+                    horizontal_mm=x,
+                    vertical_mm=y,
+                    force_reading=f,
                 )
                 for tr, seq, t, x, y, f in shear
             ],

@@ -24,7 +24,17 @@ from testing.models import (
     Specimen,
 )
 
-COUNTED = (Organisation, Project, Sample, SampleEvent, Specimen, DirectShearTest, ShearStage, ShearReading, ConsolidationReading)
+COUNTED = (
+    Organisation,
+    Project,
+    Sample,
+    SampleEvent,
+    Specimen,
+    DirectShearTest,
+    ShearStage,
+    ShearReading,
+    ConsolidationReading,
+)
 
 
 def _counts() -> dict[str, int]:
@@ -40,7 +50,8 @@ def test_loaddemo_twice_gives_the_same_counts_and_prints_demo_logins(settings: A
     call_command("loaddemo", stdout=out)
     assert _counts() == first
     text = out.getvalue()
-    assert "DEMO ONLY" in text and "demo-pass-for-test" in text
+    assert "DEMO ONLY" in text
+    assert "demo-pass-for-test" in text
     for username in ("manager", "technician", "checker", "engineer", "client-a", "client-b"):
         assert f"  {username} " in text
 
@@ -59,10 +70,14 @@ def test_demo_covers_the_lab_workload() -> None:
         assert sample.events.order_by("-at", "-id").first().to_status == sample.status  # type: ignore[union-attr]
 
     tests = DirectShearTest.objects.annotate(n=Count("stages", distinct=True))
-    assert tests.count() >= 2 and all(t.n >= 3 for t in tests)
+    assert tests.count() >= 2
+    assert all(t.n >= 3 for t in tests)
     assert ShearStage.objects.count() >= 6
-    for stage in ShearStage.objects.annotate(shear=Count("shear_readings"), cons=Count("consolidation_readings")):
-        assert stage.shear >= 100 and stage.cons >= 10  # type: ignore[attr-defined]
+    for stage in ShearStage.objects.annotate(
+        shear=Count("shear_readings"), cons=Count("consolidation_readings")
+    ):
+        assert stage.shear >= 100
+        assert stage.cons >= 10
 
 
 @pytest.mark.django_db

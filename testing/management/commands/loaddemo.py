@@ -15,8 +15,12 @@ class Command(BaseCommand):
 
     def handle(self, *args: Any, **options: Any) -> None:
         created = load_demo()
-        self.stdout.write("Demo scenario loaded." if created else "Demo scenario already present; nothing added.")
+        self.stdout.write(
+            "Demo scenario loaded." if created else "Demo scenario already present; nothing added."
+        )
         self.stdout.write("")
-        self.stdout.write(f"Demo logins (DEMO ONLY — change or remove before real use), password: {settings.TAULINE_DEMO_PASSWORD}")
+        self.stdout.write(
+            f"Demo logins (DEMO ONLY — change or remove before real use), password: {settings.TAULINE_DEMO_PASSWORD}"
+        )
         for login in DEMO_LOGINS:
             self.stdout.write(f"  {login.username:<12} {login.role}")

@@ -91,76 +91,99 @@ def fit_envelopes_batch(
             "Normal and shear stresses must be arrays of the same shape (sets × stages); got "
             f"{np.shape(normal_stress_kpa)} and {np.shape(shear_stress_kpa)}"
         )
+    n_sets, n_stages = s_in.shape
+    # Work stage-major (n_stages, n_sets): sums over stages become a few long vector adds.
     if mask is None:
-        m = np.ones(s_in.shape, dtype=bool)
+        m_t: NDArray[np.bool_] | None = None
+        s = np.ascontiguousarray(s_in.T)
+        t = np.ascontiguousarray(t_in.T)
+        n = np.full(n_sets, n_stages, dtype=np.int64)
     else:
         m = np.asarray(mask, dtype=bool)
         if m.ndim == 1:
             m = m[None, :]
         if m.shape != s_in.shape:
             raise AnalysisError(f"The stage mask has shape {m.shape}; the stresses {s_in.shape}")
-    w = m.astype(np.float64)
-    # NaN is only allowed where the stage is excluded.
-    s = as_float_array(np.where(m, s_in, 0.0), "Normal stress", "kPa", min_size=0, ndim=2)
-    t = as_float_array(np.where(m, t_in, 0.0), "Shear stress", "kPa", min_size=0, ndim=2)
-
-    n = m.sum(axis=1)
+        m_t = np.ascontiguousarray(m.T)
+        # NaN is only allowed where the stage is excluded.
+        s = np.where(m_t, s_in.T, 0.0)
+        t = np.where(m_t, t_in.T, 0.0)
+        n = m_t.sum(axis=0).astype(np.int64)
+    as_float_array(s, "Normal stress", "kPa", min_size=0, ndim=2)
+    as_float_array(t, "Shear stress", "kPa", min_size=0, ndim=2)
     nf = n.astype(np.float64)
+
     with np.errstate(divide="ignore", invalid="ignore"):
         if through_origin:
-            sxx = np.einsum("ij,ij->i", s, s)
-            b = np.einsum("ij,ij->i", s, t) / sxx
-            a = np.zeros_like(b)
-            res = (t - b[:, None] * s) * w
+            mean_s = s.sum(axis=0) / nf
+            sxx = np.einsum("ij,ij->j", s, s)
+            b = np.einsum("ij,ij->j", s, t) / sxx
+            a = np.zeros(n_sets)
+            res = t - b * s
+            if m_t is not None:
+                res *= m_t
             dof = n - 1
             valid = (n >= 1) & (sxx > 0.0)
-            ss_tot = np.einsum("ij,ij->i", t, t)
-            mean_s = s.sum(axis=1) / nf
+            ss_tot = np.einsum("ij,ij->j", t, t)
         else:
-            mean_s = s.sum(axis=1) / nf
-            mean_t = t.sum(axis=1) / nf
-            sc = (s - mean_s[:, None]) * w
-            tc = (t - mean_t[:, None]) * w
-            sxx = np.einsum("ij,ij->i", sc, sc)
-            b = np.einsum("ij,ij->i", sc, tc) / sxx
+            mean_s = s.sum(axis=0) / nf
+            mean_t = t.sum(axis=0) / nf
+            sc = s - mean_s
+            tc = t - mean_t
+            if m_t is not None:
+                sc *= m_t
+                tc *= m_t
+            sxx = np.einsum("ij,ij->j", sc, sc)
+            b = np.einsum("ij,ij->j", sc, tc) / sxx
             a = mean_t - b * mean_s
-            res = tc - b[:, None] * sc
+            res = tc - b * sc
             dof = n - 2
             valid = (n >= 2) & (sxx > (1e-12 * np.maximum(np.abs(mean_s), 1.0)) ** 2 * nf)
-            ss_tot = np.einsum("ij,ij->i", tc, tc)
-        ss_res = np.einsum("ij,ij->i", res, res)
+            ss_tot = np.einsum("ij,ij->j", tc, tc)
+        ss_res = np.einsum("ij,ij->j", res, res)
         has_dof = valid & (dof > 0)
-        s2 = np.where(has_dof, ss_res / np.where(dof > 0, dof, 1), np.nan)
+        s2 = np.where(has_dof, ss_res / np.maximum(dof, 1), np.nan)
         se_b = np.sqrt(s2 / sxx)
         if through_origin:
             se_a = np.where(valid, 0.0, np.nan)
-            corr = np.full(b.shape, np.nan)
+            corr = np.full(n_sets, np.nan)
         else:
             se_a = np.sqrt(s2 * (1.0 / nf + mean_s**2 / sxx))
             corr = -mean_s / np.sqrt(sxx / nf + mean_s**2)
         r2 = 1.0 - ss_res / ss_tot
-        tq = _t975(np.where(has_dof, dof, 0))
-        b_ci = np.stack((b - tq * se_b, b + tq * se_b), axis=1)
-        a_ci = (
-            np.stack((a - tq * se_a, a + tq * se_a), axis=1)
-            if not through_origin
-            else (np.where(valid, 0.0, np.nan)[:, None] * np.ones((1, 2)))
-        )
-        s_min = np.where(m, s, np.inf).min(axis=1)
-        s_max = np.where(m, s, -np.inf).max(axis=1)
-    nan = np.nan
-    inval = ~valid
-    for arr in (a, b, se_a, se_b, corr, r2, s2):
-        arr[inval] = nan
-    a_ci[inval] = nan
-    b_ci[inval] = nan
-    residuals = np.where(m & valid[:, None], res, nan)
+        if m_t is None:
+            d = n_stages - (1 if through_origin else 2)
+            tq: NDArray[np.float64] | float = float(stats.t.ppf(0.975, d)) if d > 0 else np.nan
+        else:
+            tq = _t975(np.where(has_dof, dof, 0))
+        b_ci = np.empty((n_sets, 2))
+        b_ci[:, 0] = b - tq * se_b
+        b_ci[:, 1] = b + tq * se_b
+        a_ci = np.empty((n_sets, 2))
+        if through_origin:
+            a_ci[:] = np.where(valid, 0.0, np.nan)[:, None]
+        else:
+            a_ci[:, 0] = a - tq * se_a
+            a_ci[:, 1] = a + tq * se_a
+        if m_t is None:
+            s_min, s_max = s.min(axis=0), s.max(axis=0)
+        else:
+            s_min = np.where(m_t, s, np.inf).min(axis=0)
+            s_max = np.where(m_t, s, -np.inf).max(axis=0)
+    if not valid.all():
+        inval = ~valid
+        for arr in (a, b, se_a, se_b, corr, r2, s2):
+            arr[inval] = np.nan
+        a_ci[inval] = np.nan
+        b_ci[inval] = np.nan
+        res[:, inval] = np.nan
+    residuals = res.T if m_t is None else np.where(m_t, res, np.nan).T
     return BatchEnvelopeFit(
         through_origin=through_origin,
         r_squared_kind="uncentred" if through_origin else "centred",
         valid=valid,
-        n=n.astype(np.int64),
-        dof=dof.astype(np.int64),
+        n=n,
+        dof=dof,
         cohesion_kpa=a,
         tan_phi=b,
         friction_angle_deg=np.degrees(np.arctan(b)),
@@ -173,6 +196,6 @@ def fit_envelopes_batch(
         r_squared=r2,
         residual_std_kpa=np.sqrt(s2),
         residuals_kpa=residuals,
-        normal_stress_min_kpa=np.where(n > 0, s_min, nan),
-        normal_stress_max_kpa=np.where(n > 0, s_max, nan),
+        normal_stress_min_kpa=np.where(n > 0, s_min, np.nan),
+        normal_stress_max_kpa=np.where(n > 0, s_max, np.nan),
     )

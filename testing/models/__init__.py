@@ -15,6 +15,16 @@ from testing.models.direct_shear import (
     TestCondition,
 )
 from testing.models.people import LabProfile, Role
+from testing.models.results import (
+    ComputationRun,
+    EnvelopeResult,
+    EnvelopeType,
+    OutboxMessage,
+    RunKind,
+    RunState,
+    StageExclusion,
+    StageResult,
+)
 from testing.models.samples import Sample, SampleEvent, SampleStatus, SampleType
 from testing.models.specimens import Preparation, Specimen, SpecimenShape
 
@@ -22,21 +32,29 @@ __all__ = [
     "AreaModel",
     "Borehole",
     "BoxShape",
+    "ComputationRun",
     "ConsolidationReading",
     "DirectShearTest",
+    "EnvelopeResult",
+    "EnvelopeType",
     "ForceUnit",
     "LabProfile",
     "MethodProfile",
     "NormalLoading",
+    "OutboxMessage",
     "Organisation",
     "Preparation",
     "Project",
     "Role",
+    "RunKind",
+    "RunState",
     "Sample",
     "SampleEvent",
     "SampleStatus",
     "SampleType",
     "ShearReading",
+    "StageExclusion",
+    "StageResult",
     "ShearStage",
     "ShearType",
     "Specimen",

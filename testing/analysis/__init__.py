@@ -40,6 +40,14 @@ Per set, the envelope::
 Many sets at once: ``fit_envelopes_batch(sigma, tau, mask=included)`` with (n_sets, n_stages)
 arrays. Characteristic values (interpretations): ``characteristic_value(values, kind="mean")``.
 Areas: ``corrected_area_mm2(shape="circular", size_mm=63.5, displacement_mm=x)``.
+
+Before the shear stage, the permitted rate::
+
+    taylor = taylor_root_time(cons_time_min, settlement_mm)             # t90, t50, construction
+    limit = max_rate(ASTM_D3080_23, t50_min=taylor.t50_min)             # v_max = d_f / (50·t50)
+
+Modules: loads (forces, calibrations, gauges), geometry (areas, stresses), phase, consolidation,
+rate, failure, stage, envelope, batch, curved, characteristic, uncertainty, flags, profiles.
 """
 
 from __future__ import annotations
@@ -56,6 +64,14 @@ from .characteristic import (
     regression_lower_band,
     schneider_value,
 )
+from .consolidation import (
+    CasagrandeResult,
+    TaylorResult,
+    bs_t100_min,
+    casagrande_log_time,
+    taylor_root_time,
+)
+from .curved import PowerEnvelopeFit, TangentParameters, fit_power_envelope
 from .envelope import (
     EnvelopeFit,
     EnvelopeValue,
@@ -105,13 +121,35 @@ from .loads import (
     gauge_displacement_mm,
     normal_force_n,
 )
+from .phase import ConsolidatedState, PhaseState, consolidated_state, phase_relations
+from .profiles import (
+    AASHTO_T236,
+    ASTM_D3080_23,
+    BS_1377_7_1990,
+    BS_EN_ISO_17892_10_2018,
+    PROFILES,
+    MethodProfile,
+)
+from .rate import RateLimit, max_rate, measured_rate_mm_per_min
 from .stage import StageCriteria, StageReduction, reduce_stage
+from .uncertainty import (
+    StressUncertainty,
+    normal_stress_uncertainty,
+    shear_stress_uncertainty,
+    standard_from_expanded,
+    standard_from_rectangular,
+)
 from .version import ANALYSIS_VERSION
 
 __all__ = [
+    "AASHTO_T236",
     "ANALYSIS_VERSION",
+    "ASTM_D3080_23",
+    "BS_1377_7_1990",
+    "BS_EN_ISO_17892_10_2018",
     "CRITERION_LABELS",
     "INTERPRETATION_NOTE",
+    "PROFILES",
     "STANDARD_GRAVITY_M_S2",
     "AnalysisError",
     "AreaModel",
@@ -119,8 +157,10 @@ __all__ = [
     "BoxGeometry",
     "BoxShape",
     "CalibrationRangeError",
+    "CasagrandeResult",
     "CharacteristicParameters",
     "CharacteristicValue",
+    "ConsolidatedState",
     "DilationResult",
     "EnvelopeFit",
     "EnvelopeValue",
@@ -131,13 +171,22 @@ __all__ = [
     "GeometryError",
     "InsufficientDataError",
     "LinearCalibration",
+    "MethodProfile",
+    "PhaseState",
     "PolynomialCalibration",
+    "PowerEnvelopeFit",
+    "RateLimit",
     "RegressionBand",
     "ResidualSearch",
     "Severity",
     "StageCriteria",
     "StageReduction",
+    "StressUncertainty",
+    "TangentParameters",
+    "TaylorResult",
     "area_mm2",
+    "bs_t100_min",
+    "casagrande_log_time",
     "characteristic_parameters",
     "characteristic_value",
     "check_calibration_valid",
@@ -149,15 +198,21 @@ __all__ = [
     "check_rate",
     "check_saturation",
     "check_stage_count",
+    "consolidated_state",
     "corrected_area_mm2",
     "cumulative_displacement_mm",
     "dilation_angle_deg",
     "fit_envelope",
     "fit_envelopes_batch",
+    "fit_power_envelope",
     "forward_traverses",
     "gauge_displacement_mm",
     "k_n",
+    "max_rate",
+    "measured_rate_mm_per_min",
     "normal_force_n",
+    "normal_stress_uncertainty",
+    "phase_relations",
     "pick_at_displacement",
     "pick_end_of_travel",
     "pick_peak",
@@ -167,5 +222,9 @@ __all__ = [
     "regression_lower_band",
     "schneider_value",
     "secant_friction_angle_deg",
+    "shear_stress_uncertainty",
+    "standard_from_expanded",
+    "standard_from_rectangular",
     "stress_kpa",
+    "taylor_root_time",
 ]

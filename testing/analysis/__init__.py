@@ -90,15 +90,11 @@ from .failure import (
     DilationResult,
     FailureCriterion,
     FailurePoint,
-    ResidualSearch,
-    cumulative_displacement_mm,
     dilation_angle_deg,
-    forward_traverses,
     pick_at_displacement,
     pick_end_of_travel,
     pick_peak,
     pick_peak_ratio,
-    pick_residual,
 )
 from .flags import (
     Flag,
@@ -131,6 +127,12 @@ from .profiles import (
     MethodProfile,
 )
 from .rate import RateLimit, max_rate, measured_rate_mm_per_min
+from .residual import (
+    ResidualSearch,
+    cumulative_displacement_mm,
+    forward_traverses,
+    pick_residual,
+)
 from .stage import StageCriteria, StageReduction, reduce_stage
 from .uncertainty import (
     StressUncertainty,

@@ -146,8 +146,9 @@ def characteristic_value(
                 "The mean of the values is zero, so their coefficient of variation is undefined"
             )
         v = std / abs(mean)
+    # x̄·(1 − k_n·V) with V relative to |x̄|: always k_n·V·|x̄| below the mean (cautious side).
     return CharacteristicValue(
-        mean * (1.0 - kn * v) if mean >= 0 else mean * (1.0 + kn * v),
+        mean - kn * v * abs(mean),
         mean,
         std,
         v,

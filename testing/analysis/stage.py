@@ -17,9 +17,7 @@ from .errors import AnalysisError, InsufficientDataError, as_float_array, fmt, s
 from .failure import (
     DilationResult,
     FailurePoint,
-    ResidualSearch,
     at_displacement,
-    pick_residual,
     pick_ultimate,
     point_at,
     prefix_sums,
@@ -27,6 +25,7 @@ from .failure import (
 )
 from .flags import Flag, check_peak_at_end_of_travel, check_rate
 from .geometry import AreaModel, BoxGeometry, area_mm2
+from .residual import ResidualSearch, pick_residual
 from .version import ANALYSIS_VERSION
 
 __all__ = ["StageCriteria", "StageReduction", "reduce_stage"]

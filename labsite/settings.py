@@ -6,6 +6,7 @@ background tasks in-process. Every variable is listed, with a one-line comment, 
 
 from __future__ import annotations
 
+from datetime import timedelta
 from pathlib import Path
 
 import dj_database_url
@@ -47,6 +48,10 @@ INSTALLED_APPS = [
     "django.contrib.messages",
     "django.contrib.staticfiles",
     "rest_framework",
+    "knox",
+    "django_filters",
+    "drf_spectacular",
+    "drf_spectacular_sidecar",
     "testing.apps.TestingConfig",
     "reports.apps.ReportsConfig",
 ]
@@ -106,7 +111,28 @@ CELERY_WORKER_PREFETCH_MULTIPLIER = 1
 CELERY_TASK_SOFT_TIME_LIMIT = env_int("TAULINE_TASK_SOFT_TIME_LIMIT", 600, minimum=1)
 CELERY_TASK_TIME_LIMIT = CELERY_TASK_SOFT_TIME_LIMIT + 60
 # Keep time limits well below the broker's visibility timeout, or a long task is redelivered.
-CELERY_BROKER_TRANSPORT_OPTIONS = {"visibility_timeout": 3 * CELERY_TASK_TIME_LIMIT}
+CELERY_BROKER_TRANSPORT_OPTIONS = {
+    "visibility_timeout": 3 * CELERY_TASK_TIME_LIMIT,
+    "socket_connect_timeout": 1,
+    "socket_timeout": 5,
+}
+# A claimed run holds a lease this long (renewed as it progresses); a run whose worker died is
+# re-queued by the sweeper once its lease has run out.
+TAULINE_RUN_LEASE_SECONDS = env_int("TAULINE_RUN_LEASE_SECONDS", 60, minimum=1)
+# A queued run whose message was published this long ago without being claimed is published again.
+TAULINE_RUN_REPUBLISH_SECONDS = env_int("TAULINE_RUN_REPUBLISH_SECONDS", 120, minimum=1)
+# How often each worker's heartbeat thread marks the worker alive and runs the outbox relay.
+TAULINE_WORKER_HEARTBEAT_SECONDS = env_int("TAULINE_WORKER_HEARTBEAT_SECONDS", 5, minimum=1)
+CELERY_BROKER_CONNECTION_TIMEOUT = 1.0
+CELERY_BROKER_CONNECTION_RETRY_ON_STARTUP = True
+# A web request publishes once and gives up fast when the broker is down; the outbox keeps the job.
+CELERY_TASK_PUBLISH_RETRY = False
+CELERY_TASK_DEFAULT_QUEUE = "computation"
+CELERY_TASK_ROUTES = {
+    "tauline.run_computation": {"queue": "computation"},
+    "tauline.relay_outbox": {"queue": "computation"},
+    "reports.*": {"queue": "reports"},
+}
 CELERY_TASK_SERIALIZER = "json"
 CELERY_ACCEPT_CONTENT = ["json"]
 
@@ -150,13 +176,56 @@ MEDIA_URL = "media/"
 MEDIA_ROOT = Path(env_str("MEDIA_ROOT") or (VAR_DIR / "media"))
 
 # --- API --------------------------------------------------------------------------------------
+# Requests per user (signed in) or per address (anonymous, token requests); read per request.
+TAULINE_API_THROTTLE_RATES = {
+    "anon": env_str("TAULINE_API_ANON_RATE", "120/hour"),
+    "user": env_str("TAULINE_API_USER_RATE", "5000/hour"),
+    "token": env_str("TAULINE_API_TOKEN_RATE", "10/minute"),
+}
+for _scope, _rate in TAULINE_API_THROTTLE_RATES.items():
+    _count, _, _period = _rate.partition("/")
+    if not (_count.isdigit() and _period in {"second", "minute", "hour", "day"}):
+        raise ImproperlyConfigured(
+            f"TAULINE_API_{_scope.upper()}_RATE={_rate!r} is not a rate like 100/hour "
+            "(a number, then /second, /minute, /hour or /day)."
+        )
 REST_FRAMEWORK = {
     "DEFAULT_PERMISSION_CLASSES": ["rest_framework.permissions.IsAuthenticated"],
+    # Token first, so an anonymous request is answered 401 with a WWW-Authenticate header.
     "DEFAULT_AUTHENTICATION_CLASSES": [
+        "knox.auth.TokenAuthentication",
         "rest_framework.authentication.SessionAuthentication",
     ],
-    "DEFAULT_PAGINATION_CLASS": "rest_framework.pagination.PageNumberPagination",
+    "DEFAULT_PAGINATION_CLASS": "testing.api.pagination.CappedPagination",
     "PAGE_SIZE": 50,
+    "DEFAULT_FILTER_BACKENDS": [
+        "django_filters.rest_framework.DjangoFilterBackend",
+        "rest_framework.filters.OrderingFilter",
+    ],
+    "DEFAULT_THROTTLE_CLASSES": [
+        "testing.api.throttles.AnonThrottle",
+        "testing.api.throttles.UserThrottle",
+    ],
+    "EXCEPTION_HANDLER": "testing.api.errors.api_exception_handler",
+    "DEFAULT_SCHEMA_CLASS": "drf_spectacular.openapi.AutoSchema",
+    "TEST_REQUEST_DEFAULT_FORMAT": "json",
+}
+REST_KNOX = {
+    "AUTH_HEADER_PREFIX": "Token",
+    "TOKEN_TTL": timedelta(hours=env_int("TAULINE_API_TOKEN_TTL_HOURS", 10, minimum=1)),
+}
+SPECTACULAR_SETTINGS = {
+    "TITLE": "Tauline API",
+    "DESCRIPTION": (
+        "Lab records, direct shear results and throughput. Results apply only to the specimens "
+        "tested; design parameters are for a qualified geotechnical engineer under local codes."
+    ),
+    "VERSION": "1",
+    "SERVE_INCLUDE_SCHEMA": False,
+    "SWAGGER_UI_DIST": "SIDECAR",
+    "SWAGGER_UI_FAVICON_HREF": "SIDECAR",
+    "REDOC_DIST": "SIDECAR",
+    "COMPONENT_SPLIT_REQUEST": True,
 }
 
 # --- Security (tightened further when DEBUG is off) -------------------------------------------
@@ -176,6 +245,13 @@ if not DEBUG:
 # --- Lab ---------------------------------------------------------------------------------------
 TAULINE_LAB_NAME = env_str("TAULINE_LAB_NAME", "Tauline demonstration laboratory")
 TAULINE_DEMO_PASSWORD = env_str("TAULINE_DEMO_PASSWORD", "tauline-demo")
+# Reports: the lab's postal address on every report, the report number pattern ({year}, {seq},
+# {project}), and the lab's signing key and certificate (PEM). Without the two files, a
+# self-signed lab certificate is made on first use under MEDIA_ROOT/keys (development and demo).
+TAULINE_LAB_ADDRESS = env_str("TAULINE_LAB_ADDRESS", "Unit 4, Example Business Park, Exampleton")
+TAULINE_REPORT_NUMBER_PATTERN = env_str("TAULINE_REPORT_NUMBER_PATTERN", "TR-{year}-{seq:04d}")
+TAULINE_SIGNING_KEY_FILE = env_str("TAULINE_SIGNING_KEY_FILE")
+TAULINE_SIGNING_CERT_FILE = env_str("TAULINE_SIGNING_CERT_FILE")
 TAULINE_DEFAULT_TURNAROUND_DAYS = env_int("TAULINE_DEFAULT_TURNAROUND_DAYS", 15, minimum=1)
 
 LOGGING = {

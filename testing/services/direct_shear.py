@@ -1,0 +1,250 @@
+"""The one adapter between direct shear records and the pure core.
+
+It turns a stage's rows into arrays, calls ``testing.analysis``, and turns the frozen results into
+result rows stamped with ``ANALYSIS_VERSION`` and the inputs' fingerprint. It never decides *when* to
+compute — that is ``testing.services.computation``'s job.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from testing import analysis
+from testing.models import (
+    ComputationRun,
+    DirectShearTest,
+    EnvelopeResult,
+    EnvelopeType,
+    ShearStage,
+    StageExclusion,
+    StageResult,
+)
+from testing.services.stage_inputs import StageInputs, box_geometry, stage_inputs_load
+
+# Which failure point of a stage result feeds each envelope type.
+_ENVELOPE_POINT_FIELDS: dict[str, tuple[str, str]] = {
+    EnvelopeType.PEAK: ("failure_normal_stress_kpa", "failure_shear_stress_kpa"),
+    EnvelopeType.ULTIMATE: ("ultimate_normal_stress_kpa", "ultimate_shear_stress_kpa"),
+    EnvelopeType.RESIDUAL: ("residual_normal_stress_kpa", "residual_shear_stress_kpa"),
+}
+
+
+def _finite_or_none(value: float | None) -> float | None:
+    return None if value is None or not math.isfinite(value) else float(value)
+
+
+def _flag_dict(flag: analysis.Flag) -> dict[str, Any]:
+    return {
+        "code": flag.code,
+        "severity": flag.severity,
+        "message": flag.message,
+        "values": {k: _finite_or_none(float(v)) for k, v in flag.values.items()},
+    }
+
+
+# --- Stage reduction ---------------------------------------------------------------------------
+
+
+def stage_reduction_compute(
+    stage: ShearStage, inputs: StageInputs | None = None
+) -> analysis.StageReduction:
+    """Reduce a stage in-process (used by runs, and by pages that draw the per-reading curves)."""
+    inputs = inputs or stage_inputs_load(stage)
+    if inputs.time_min.size < 2:
+        raise analysis.InsufficientDataError(
+            f"Stage {stage.stage_number} has {inputs.time_min.size} shear reading(s); at least 2 are needed."
+        )
+    force_n = inputs.calibration.force_n(inputs.force_reading)
+    return analysis.reduce_stage(
+        time_min=inputs.time_min,
+        horizontal_mm=inputs.horizontal_mm,
+        vertical_mm=inputs.vertical_mm,
+        shear_force_n=force_n,
+        normal_force_n=inputs.settings["normal_force_n"],
+        box=box_geometry(stage.test),
+        area_model=inputs.settings["area_model"],
+    )
+
+
+def stage_result_store(
+    *,
+    run: ComputationRun,
+    stage: ShearStage,
+    inputs_hash: str,
+    reduction: analysis.StageReduction,
+    inputs: StageInputs,
+) -> StageResult:
+    """Write the result row of one successful stage reduction."""
+    failure = reduction.peak
+    ultimate = reduction.ultimate
+    residual = reduction.residual.point if reduction.residual is not None else None
+    box = box_geometry(stage.test)
+    return StageResult.objects.create(
+        run=run,
+        stage=stage,
+        analysis_version=reduction.analysis_version,
+        inputs_hash=inputs_hash,
+        area_model=reduction.area_model,
+        n_readings=reduction.n_readings,
+        normal_force_n=inputs.settings["normal_force_n"],
+        initial_normal_stress_kpa=inputs.settings["normal_force_n"] / box.plan_area_mm2 * 1000.0,
+        failure_criterion=failure.criterion,
+        failure_shear_stress_kpa=failure.shear_stress_kpa,
+        failure_normal_stress_kpa=failure.normal_stress_kpa,
+        failure_horizontal_mm=failure.horizontal_mm,
+        failure_vertical_mm=failure.vertical_mm,
+        failure_secant_phi_deg=math.degrees(
+            math.atan2(failure.shear_stress_kpa, failure.normal_stress_kpa)
+        ),
+        ultimate_shear_stress_kpa=ultimate.shear_stress_kpa if ultimate else None,
+        ultimate_normal_stress_kpa=ultimate.normal_stress_kpa if ultimate else None,
+        ultimate_horizontal_mm=ultimate.horizontal_mm if ultimate else None,
+        residual_shear_stress_kpa=residual.shear_stress_kpa if residual else None,
+        residual_normal_stress_kpa=residual.normal_stress_kpa if residual else None,
+        residual_horizontal_mm=residual.cumulative_horizontal_mm if residual else None,
+        residual_vertical_mm=residual.vertical_mm if residual else None,
+        max_dilation_angle_deg=_finite_or_none(reduction.max_dilation_angle_deg),
+        max_dilation_horizontal_mm=_finite_or_none(reduction.max_dilation_horizontal_mm),
+        measured_rate_mm_per_min=_finite_or_none(reduction.measured_rate_mm_per_min),
+        max_rate_mm_per_min=_finite_or_none(reduction.max_rate_mm_per_min),
+        flags=[_flag_dict(f) for f in reduction.flags],
+    )
+
+
+# --- Envelopes -----------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class EnvelopeInputs:
+    """The points of one envelope: latest stage results plus the stage exclusions for this type."""
+
+    test_id: int
+    envelope_type: str
+    points: list[dict[str, Any]]
+
+    def digest(self) -> str:
+        payload = {"test": self.test_id, "type": self.envelope_type, "points": self.points}
+        return hashlib.sha256(
+            json.dumps(payload, sort_keys=True, separators=(",", ":")).encode()
+        ).hexdigest()
+
+    @property
+    def usable(self) -> list[dict[str, Any]]:
+        return [p for p in self.points if p["normal_stress_kpa"] is not None]
+
+
+def envelope_inputs_load(
+    test: DirectShearTest, envelope_type: str, results: Mapping[int, StageResult]
+) -> EnvelopeInputs:
+    """Points for one envelope type from the given latest result per stage id."""
+    sigma_field, tau_field = _ENVELOPE_POINT_FIELDS[envelope_type]
+    exclusions = dict(
+        StageExclusion.objects.filter(stage__test=test, envelope_type=envelope_type).values_list(
+            "stage_id", "reason"
+        )
+    )
+    points = []
+    for stage in test.stages.order_by("stage_number"):
+        result = results.get(stage.pk)
+        if result is None:
+            continue
+        points.append(
+            {
+                "stage_number": stage.stage_number,
+                "stage_result_id": result.pk,
+                "normal_stress_kpa": getattr(result, sigma_field),
+                "shear_stress_kpa": getattr(result, tau_field),
+                "included": stage.pk not in exclusions,
+                "reason": exclusions.get(stage.pk, ""),
+            }
+        )
+    return EnvelopeInputs(test_id=test.pk, envelope_type=envelope_type, points=points)
+
+
+def envelope_fit_compute(inputs: EnvelopeInputs) -> analysis.EnvelopeFit:
+    usable = inputs.usable
+    exclude = {i: p["reason"] for i, p in enumerate(usable) if not p["included"]}
+    return analysis.fit_envelope(
+        [p["normal_stress_kpa"] for p in usable],
+        [p["shear_stress_kpa"] for p in usable],
+        exclude=exclude or None,
+    )
+
+
+def _fit_summary(fit: analysis.EnvelopeFit) -> dict[str, Any]:
+    return {
+        "cohesion_kpa": fit.cohesion_kpa,
+        "friction_angle_deg": fit.friction_angle_deg,
+        "tan_phi": fit.tan_phi,
+        "stderr_tan_phi": _finite_or_none(fit.stderr_tan_phi),
+        "r_squared": _finite_or_none(fit.r_squared),
+        "r_squared_kind": fit.r_squared_kind,
+        "method": fit.method,
+    }
+
+
+def envelope_result_store(
+    *,
+    run: ComputationRun,
+    test: DirectShearTest,
+    inputs: EnvelopeInputs,
+    inputs_hash: str,
+    fit: analysis.EnvelopeFit,
+) -> EnvelopeResult:
+    """Write the result row of one successful envelope fit."""
+    low_c, high_c = fit.cohesion_ci95_kpa
+    low_phi, high_phi = fit.friction_angle_ci95_deg
+    points = [{**p, "residual_kpa": None} for p in inputs.points]
+    usable_numbers = [p["stage_number"] for p in inputs.usable]
+    for index, residual in zip(fit.included_indices, fit.residuals_kpa, strict=True):
+        number = usable_numbers[index]
+        for p in points:
+            if p["stage_number"] == number:
+                p["residual_kpa"] = float(residual)
+    return EnvelopeResult.objects.create(
+        run=run,
+        test=test,
+        envelope_type=inputs.envelope_type,
+        analysis_version=analysis.ANALYSIS_VERSION,
+        inputs_hash=inputs_hash,
+        fit_method=fit.method,
+        through_origin=fit.through_origin,
+        points=points,
+        n=fit.n,
+        cohesion_kpa=fit.cohesion_kpa,
+        friction_angle_deg=fit.friction_angle_deg,
+        tan_phi=fit.tan_phi,
+        stderr_cohesion_kpa=_finite_or_none(fit.stderr_cohesion_kpa),
+        stderr_tan_phi=_finite_or_none(fit.stderr_tan_phi),
+        cohesion_ci95_low_kpa=_finite_or_none(low_c),
+        cohesion_ci95_high_kpa=_finite_or_none(high_c),
+        friction_angle_ci95_low_deg=_finite_or_none(low_phi),
+        friction_angle_ci95_high_deg=_finite_or_none(high_phi),
+        corr_cohesion_tan_phi=_finite_or_none(fit.corr_cohesion_tan_phi),
+        r_squared=_finite_or_none(fit.r_squared),
+        r_squared_kind=fit.r_squared_kind,
+        normal_stress_min_kpa=fit.normal_stress_range_kpa[0],
+        normal_stress_max_kpa=fit.normal_stress_range_kpa[1],
+        through_origin_alternative=(
+            _fit_summary(fit.through_origin_alternative)
+            if fit.through_origin_alternative is not None
+            else None
+        ),
+        warnings=[_flag_dict(w) for w in fit.warnings],
+    )
+
+
+def stress_arrays(reduction: analysis.StageReduction) -> dict[str, list[float]]:
+    """Per-reading curves for charts, as plain lists (x, y, τ, σn)."""
+    return {
+        "shear_stress_kpa": np.asarray(reduction.shear_stress_kpa).tolist(),
+        "normal_stress_kpa": np.asarray(reduction.normal_stress_kpa).tolist(),
+        "stress_ratio": np.asarray(reduction.stress_ratio).tolist(),
+    }

@@ -1,0 +1,143 @@
+"""Gather one stage's inputs from the database as arrays, and fingerprint them.
+
+The fingerprint (sha256 of a canonical encoding of every number and setting that feeds the
+computation) lets a run recognise that an identical computation already exists, and lets every
+stored result say exactly which inputs made it.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+from numpy.typing import NDArray
+
+from testing import analysis
+from testing.models import (
+    ConsolidationReading,
+    DirectShearTest,
+    ForceUnit,
+    NormalLoading,
+    ShearReading,
+    ShearStage,
+)
+from testing.models.direct_shear import AreaModel, BoxShape
+
+
+@dataclass(frozen=True)
+class StageInputs:
+    """Everything a stage reduction reads. Arrays are float64, one value per reading."""
+
+    stage_id: int
+    settings: dict[str, Any]
+    time_min: NDArray[np.float64]
+    horizontal_mm: NDArray[np.float64]
+    vertical_mm: NDArray[np.float64]
+    force_reading: NDArray[np.float64]
+    consolidation_time_min: NDArray[np.float64]
+    consolidation_settlement_mm: NDArray[np.float64]
+    calibration: analysis.LinearCalibration | analysis.PolynomialCalibration = field(repr=False)
+
+    def digest(self) -> str:
+        """sha256 over the canonical settings JSON and the raw bytes of every array."""
+        h = hashlib.sha256()
+        h.update(json.dumps(self.settings, sort_keys=True, separators=(",", ":")).encode())
+        for array in (
+            self.time_min,
+            self.horizontal_mm,
+            self.vertical_mm,
+            self.force_reading,
+            self.consolidation_time_min,
+            self.consolidation_settlement_mm,
+        ):
+            h.update(np.ascontiguousarray(array, dtype="<f8").tobytes())
+            h.update(b"|")
+        return h.hexdigest()
+
+
+def box_geometry(test: DirectShearTest) -> analysis.BoxGeometry:
+    if test.box_shape == BoxShape.CIRCULAR:
+        return analysis.BoxGeometry.circular(test.box_length_mm)
+    assert test.box_width_mm is not None
+    return analysis.BoxGeometry.rectangular(test.box_length_mm, test.box_width_mm)
+
+
+def stage_normal_force_n(stage: ShearStage, box: analysis.BoxGeometry) -> float:
+    """Applied normal force [N]: built up from the masses and lever, or from a load frame's stress."""
+    if stage.loading == NormalLoading.FRAME:
+        assert stage.applied_normal_stress_kpa is not None
+        return stage.applied_normal_stress_kpa * box.plan_area_mm2 / 1000.0
+    return analysis.normal_force_n(
+        direct_mass_kg=stage.direct_mass_kg or 0.0,
+        lever_ratio=stage.lever_ratio or 1.0,
+        hanger_mass_kg=stage.hanger_mass_kg or 0.0,
+        weights_mass_kg=stage.weights_mass_kg or 0.0,
+        beam_offset_n=stage.beam_offset_force_n,
+    )
+
+
+def stage_calibration(stage: ShearStage) -> analysis.LinearCalibration:
+    """The force calibration recorded on the stage (ring constant and zero, or a load cell in N)."""
+    device = "ring" if stage.force_unit == ForceUnit.DIVISIONS else "load cell"
+    return analysis.LinearCalibration(
+        factor_n_per_unit=stage.force_factor_n_per_unit,
+        zero_reading=stage.force_zero_reading,
+        unit=stage.force_unit,
+        device=device,
+    )
+
+
+def stage_inputs_load(stage: ShearStage) -> StageInputs:
+    """Read a stage's readings (two queries) and settings into :class:`StageInputs`."""
+    test = stage.test
+    specimen = stage.specimen
+    box = box_geometry(test)
+    calibration = stage_calibration(stage)
+    rows = np.array(
+        ShearReading.objects.filter(stage=stage)
+        .order_by("traverse", "seq")
+        .values_list("elapsed_min", "horizontal_mm", "vertical_mm", "force_reading"),
+        dtype=np.float64,
+    ).reshape(-1, 4)
+    cons = np.array(
+        ConsolidationReading.objects.filter(stage=stage)
+        .order_by("elapsed_min")
+        .values_list("elapsed_min", "settlement_mm"),
+        dtype=np.float64,
+    ).reshape(-1, 2)
+    settings = {
+        "box": {"shape": box.shape, "length_mm": box.length_mm, "width_mm": box.width_mm},
+        "area_model": "corrected" if test.area_model == AreaModel.CORRECTED else "nominal",
+        "method": test.method,
+        "method_edition": test.method_edition,
+        "normal_force_n": stage_normal_force_n(stage, box),
+        "calibration": {
+            "kind": "linear",
+            "factor_n_per_unit": calibration.factor_n_per_unit,
+            "zero_reading": calibration.zero_reading,
+        },
+        "specimen": {
+            "height_mm": specimen.height_mm,
+            "initial_mass_g": specimen.initial_mass_g,
+            "final_mass_g": specimen.final_mass_g,
+            "dry_mass_g": specimen.dry_mass_g,
+            "particle_density_mg_m3": specimen.particle_density_mg_m3,
+            "particle_density_assumed": specimen.particle_density_assumed,
+            "max_particle_size_mm": specimen.max_particle_size_mm,
+        },
+        "rate_set_mm_per_min": stage.rate_mm_per_min,
+    }
+    return StageInputs(
+        stage_id=stage.pk,
+        settings=settings,
+        time_min=rows[:, 0].copy(),
+        horizontal_mm=rows[:, 1].copy(),
+        vertical_mm=rows[:, 2].copy(),
+        force_reading=rows[:, 3].copy(),
+        consolidation_time_min=cons[:, 0].copy(),
+        consolidation_settlement_mm=cons[:, 1].copy(),
+        calibration=calibration,
+    )

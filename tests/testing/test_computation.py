@@ -1,0 +1,290 @@
+"""Computation runs in-process: results stored with version and inputs, reuse, claims, the sweeper."""
+
+from __future__ import annotations
+
+import math
+from datetime import timedelta
+from io import StringIO
+from typing import Any
+from unittest import mock
+
+import pytest
+from django.core.management import call_command
+from django.db import OperationalError, transaction
+from django.utils import timezone
+
+from testing import analysis, selectors
+from testing.models import (
+    ComputationRun,
+    DirectShearTest,
+    EnvelopeResult,
+    OutboxMessage,
+    RunKind,
+    RunState,
+    ShearReading,
+    StageResult,
+)
+from testing.services import computation
+from testing.services.demo import load_demo
+from testing.services.errors import ServiceError
+
+
+@pytest.fixture
+def demo(db: None, django_capture_on_commit_callbacks: Any) -> dict[str, Any]:
+    load_demo()
+    from django.contrib.auth.models import User
+
+    return {
+        "sand": DirectShearTest.objects.get(reference="DS-01"),
+        "clay": DirectShearTest.objects.get(reference="DS-02"),
+        "technician": User.objects.get(username="technician"),
+        "checker": User.objects.get(username="checker"),
+        "capture": django_capture_on_commit_callbacks,
+    }
+
+
+def _recompute(
+    demo: dict[str, Any], test: DirectShearTest, reason: str = "test"
+) -> list[ComputationRun]:
+    with demo["capture"](execute=True):
+        runs = computation.test_recompute_request(test=test, user=demo["technician"], reason=reason)
+    return runs
+
+
+def test_recompute_reduces_every_stage_and_fits_the_peak_envelope(demo: dict[str, Any]) -> None:
+    sand = demo["sand"]
+    runs = _recompute(demo, sand)
+    assert {r.kind for r in runs} == {RunKind.STAGE_REDUCTION}
+    for run in ComputationRun.objects.filter(test=sand):
+        assert run.state == RunState.SUCCEEDED, run.error
+        assert run.analysis_version == analysis.ANALYSIS_VERSION
+        assert len(run.inputs_hash) == 64
+        assert run.progress_pct == 100
+    results = selectors.latest_stage_results(test=sand)
+    assert len(results) == 3
+    for result in results.values():
+        assert result.analysis_version == analysis.ANALYSIS_VERSION
+        assert result.failure_criterion == "peak"
+        # The demo sand was generated with a peak friction angle of 40° and no cohesion (invented
+        # parameters, testing.demo.synthetic); each stage's secant angle must come back near it.
+        assert result.failure_secant_phi_deg == pytest.approx(40.0, abs=1.5)
+        assert result.max_dilation_angle_deg is not None and result.max_dilation_angle_deg > 3.0
+    envelope = selectors.latest_envelopes(test=sand)["peak"]
+    assert envelope.n == 3
+    assert envelope.friction_angle_deg == pytest.approx(40.0, abs=2.0)
+    assert abs(envelope.cohesion_kpa) < 8.0
+    assert [p["stage_number"] for p in envelope.points] == [1, 2, 3]
+    assert envelope.normal_stress_min_kpa < envelope.normal_stress_max_kpa
+    assert any(w["code"] for w in envelope.warnings)  # n = 3 always carries its warning
+
+
+def test_clay_plateau_gives_its_own_envelope(demo: dict[str, Any]) -> None:
+    _recompute(demo, demo["clay"])
+    envelope = selectors.latest_envelopes(test=demo["clay"])["peak"]
+    # Generated with φ′ = 24°, c′ = 5 kPa (invented demo parameters).
+    assert envelope.friction_angle_deg == pytest.approx(24.0, abs=2.0)
+    assert envelope.cohesion_kpa == pytest.approx(5.0, abs=5.0)
+
+
+def test_same_inputs_and_version_reuse_the_result(demo: dict[str, Any]) -> None:
+    sand = demo["sand"]
+    _recompute(demo, sand, "first")
+    rows_before = StageResult.objects.count(), EnvelopeResult.objects.count()
+    second = _recompute(demo, sand, "second")
+    assert (StageResult.objects.count(), EnvelopeResult.objects.count()) == rows_before
+    for run in second:
+        run.refresh_from_db()
+        assert run.state == RunState.SUCCEEDED
+        assert run.reused_from is not None
+        assert computation.stage_result_for_run(run) == selectors.latest_stage_result(
+            stage=run.stage
+        )
+
+
+def test_changed_readings_make_a_new_result_and_keep_the_old(demo: dict[str, Any]) -> None:
+    sand = demo["sand"]
+    _recompute(demo, sand)
+    stage = sand.stages.get(stage_number=1)
+    old = selectors.latest_stage_result(stage=stage)
+    assert old is not None
+    old_values = (old.pk, old.failure_shear_stress_kpa, old.inputs_hash)
+    ShearReading.objects.filter(stage=stage).update(
+        force_reading=1.1 * 100
+    )  # a flat, different curve
+    with demo["capture"](execute=True):
+        computation.stage_reduction_request(
+            stage=stage, user=demo["technician"], reason="readings edited"
+        )
+    new = selectors.latest_stage_result(stage=stage)
+    assert new is not None and new.pk != old.pk and new.inputs_hash != old.inputs_hash
+    old.refresh_from_db()
+    assert (old.pk, old.failure_shear_stress_kpa, old.inputs_hash) == old_values
+
+
+def test_a_rolled_back_request_publishes_nothing(demo: dict[str, Any]) -> None:
+    stage = demo["sand"].stages.first()
+    def request_then_cancel() -> None:
+        with transaction.atomic():
+            computation.stage_reduction_request(stage=stage, user=demo["technician"], reason="x")
+            raise RuntimeError("user pressed cancel")
+
+    with demo["capture"](execute=True) as callbacks, pytest.raises(RuntimeError):
+        request_then_cancel()
+    assert callbacks == []
+    assert not ComputationRun.objects.exists()
+    assert not OutboxMessage.objects.exists()
+
+
+def test_requests_for_the_same_subject_share_one_queued_run(demo: dict[str, Any]) -> None:
+    stage = demo["sand"].stages.first()
+    with mock.patch.object(computation, "outbox_publish"):
+        first = computation.stage_reduction_request(
+            stage=stage, user=demo["technician"], reason="a"
+        )
+        second = computation.stage_reduction_request(
+            stage=stage, user=demo["technician"], reason="b"
+        )
+    assert first.pk == second.pk
+    assert OutboxMessage.objects.filter(run=first).count() == 1
+
+
+def test_a_second_delivery_finds_nothing_to_claim(demo: dict[str, Any]) -> None:
+    stage = demo["sand"].stages.first()
+    with mock.patch.object(computation, "outbox_publish"):
+        run = computation.stage_reduction_request(stage=stage, user=demo["technician"], reason="a")
+    assert computation.run_execute(run_id=run.pk) == "done"
+    assert computation.run_execute(run_id=run.pk) == "skipped"
+    assert StageResult.objects.filter(run=run).count() == 1
+    run.refresh_from_db()
+    assert run.attempts == 1
+
+
+def test_a_run_without_readings_fails_with_a_message_a_person_can_act_on(
+    demo: dict[str, Any],
+) -> None:
+    stage = demo["sand"].stages.first()
+    ShearReading.objects.filter(stage=stage).delete()
+    with demo["capture"](execute=True):
+        run = computation.stage_reduction_request(stage=stage, user=demo["technician"], reason="a")
+    run.refresh_from_db()
+    assert run.state == RunState.FAILED
+    assert "at least 2 are needed" in run.error and f"Stage {stage.stage_number}" in run.error
+
+
+def test_transient_database_error_puts_the_run_back_in_the_queue(demo: dict[str, Any]) -> None:
+    stage = demo["sand"].stages.first()
+    with mock.patch.object(computation, "outbox_publish"):
+        run = computation.stage_reduction_request(stage=stage, user=demo["technician"], reason="a")
+    with (
+        mock.patch(
+            "testing.services.stage_inputs.stage_inputs_load",
+            side_effect=OperationalError("server closed"),
+        ),
+        pytest.raises(computation.TransientError),
+    ):
+        computation.run_execute(run_id=run.pk)
+    run.refresh_from_db()
+    assert (run.state, run.attempts) == (RunState.QUEUED, 1)
+    assert computation.run_execute(run_id=run.pk) == "done"
+
+
+def test_sweeper_requeues_a_dead_workers_run_then_gives_up_after_three(
+    demo: dict[str, Any],
+) -> None:
+    stage = demo["sand"].stages.first()
+    with mock.patch.object(computation, "outbox_publish"):
+        run = computation.stage_reduction_request(stage=stage, user=demo["technician"], reason="a")
+    past = timezone.now() - timedelta(seconds=1)
+    for attempt in (1, 2):
+        ComputationRun.objects.filter(pk=run.pk).update(
+            state=RunState.RUNNING, attempts=attempt, lease_expires_at=past
+        )
+        assert computation.runs_sweep()["requeued"] == 1
+        run.refresh_from_db()
+        assert run.state == RunState.QUEUED
+    ComputationRun.objects.filter(pk=run.pk).update(
+        state=RunState.RUNNING, attempts=3, lease_expires_at=past
+    )
+    assert computation.runs_sweep()["failed"] == 1
+    run.refresh_from_db()
+    assert run.state == RunState.FAILED and "stopped 3 times" in run.error
+    assert OutboxMessage.objects.filter(run=run).count() == 3  # the original and two re-queues
+
+
+def test_live_lease_is_not_stolen(demo: dict[str, Any]) -> None:
+    stage = demo["sand"].stages.first()
+    with mock.patch.object(computation, "outbox_publish"):
+        run = computation.stage_reduction_request(stage=stage, user=demo["technician"], reason="a")
+    ComputationRun.objects.filter(pk=run.pk).update(
+        state=RunState.RUNNING,
+        attempts=1,
+        claim_token="someone",
+        lease_expires_at=timezone.now() + timedelta(minutes=5),
+    )
+    assert computation.run_execute(run_id=run.pk) == "busy"
+    assert computation.runs_sweep() == {"failed": 0, "requeued": 0, "republished": 0}
+
+
+def test_broker_down_keeps_the_outbox_row_and_answers_fast(
+    demo: dict[str, Any], settings: Any
+) -> None:
+    settings.CELERY_TASK_ALWAYS_EAGER = False
+    stage = demo["sand"].stages.first()
+    computation._broker_down_until = 0.0
+    with (
+        mock.patch(
+            "testing.tasks.run_computation.apply_async",
+            side_effect=ConnectionError("Connection refused"),
+        ),
+        demo["capture"](execute=True),
+    ):
+        run = computation.stage_reduction_request(stage=stage, user=demo["technician"], reason="a")
+    message = OutboxMessage.objects.get(run=run)
+    assert message.published_at is None
+    assert "Connection refused" in message.last_error
+    computation._broker_down_until = 0.0
+    with mock.patch("testing.tasks.run_computation.apply_async") as publish:
+        assert computation.outbox_publish() == 1
+    publish.assert_called_once_with(args=[run.pk], queue="computation")
+
+
+def test_exclusion_needs_a_reason_and_refits_without_the_stage(demo: dict[str, Any]) -> None:
+    sand = demo["sand"]
+    _recompute(demo, sand)
+    stage = sand.stages.get(stage_number=2)
+    with pytest.raises(ServiceError, match="reason"):
+        computation.stage_exclude(
+            stage=stage, envelope_type="peak", reason="  ", user=demo["checker"]
+        )
+    with demo["capture"](execute=True):
+        computation.stage_exclude(
+            stage=stage,
+            envelope_type="peak",
+            reason="Specimen tilted at set-up",
+            user=demo["checker"],
+        )
+    envelope = selectors.latest_envelopes(test=sand)["peak"]
+    assert envelope.n == 2
+    excluded = [p for p in envelope.points if not p["included"]]
+    assert [(p["stage_number"], p["reason"]) for p in excluded] == [
+        (2, "Specimen tilted at set-up")
+    ]
+    assert (
+        EnvelopeResult.objects.filter(test=sand, envelope_type="peak").count() == 2
+    )  # the earlier fit is kept
+
+
+def test_recompute_command_leaves_existing_result_rows_untouched(demo: dict[str, Any]) -> None:
+    _recompute(demo, demo["sand"])
+    before = {
+        r.pk: (r.failure_shear_stress_kpa, r.inputs_hash, r.analysis_version)
+        for r in StageResult.objects.all()
+    }
+    with demo["capture"](execute=True):
+        call_command("recompute_results", "--test", "DS-01", stdout=StringIO())
+    after = {
+        r.pk: (r.failure_shear_stress_kpa, r.inputs_hash, r.analysis_version)
+        for r in StageResult.objects.filter(pk__in=before)
+    }
+    assert after == before
+    assert all(math.isfinite(v[0]) for v in after.values())

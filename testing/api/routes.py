@@ -1,0 +1,21 @@
+"""Registers the testing app's viewsets on the one API router (see ``labsite/api_urls.py``)."""
+
+from __future__ import annotations
+
+from rest_framework.routers import BaseRouter
+
+from testing.api.views import records, results, shear
+
+
+def register(router: BaseRouter) -> None:
+    router.register("organisations", records.OrganisationViewSet, basename="organisation")
+    router.register("projects", records.ProjectViewSet, basename="project")
+    router.register("boreholes", records.BoreholeViewSet, basename="borehole")
+    router.register("samples", records.SampleViewSet, basename="sample")
+    router.register("specimens", records.SpecimenViewSet, basename="specimen")
+    router.register("test-sets", shear.TestSetViewSet, basename="test-set")
+    router.register("stages", shear.StageViewSet, basename="stage")
+    router.register("computation-runs", results.ComputationRunViewSet, basename="computation-run")
+    router.register("stage-results", results.StageResultViewSet, basename="stage-result")
+    router.register("envelopes", results.EnvelopeViewSet, basename="envelope")
+    router.register("throughput", results.ThroughputViewSet, basename="throughput")

@@ -1,0 +1,148 @@
+"""Computation runs, stage results, envelopes and throughput counts (all read-only)."""
+
+from __future__ import annotations
+
+from drf_spectacular.utils import extend_schema_serializer
+from rest_framework import serializers
+
+from testing.api.serializers.base import OutputSerializer
+from testing.models import ComputationRun, EnvelopeResult, EnvelopeType, SampleStatus, StageResult
+
+
+class ComputationRunOut(OutputSerializer):
+    class Meta:
+        model = ComputationRun
+        fields = [
+            "id",
+            "kind",
+            "subject_key",
+            "test",
+            "stage",
+            "envelope_type",
+            "state",
+            "reason",
+            "requested_at",
+            "analysis_version",
+            "inputs_hash",
+            "attempts",
+            "started_at",
+            "finished_at",
+            "progress_pct",
+            "error",
+            "reused_from",
+        ]
+
+
+class RecordRefOut(serializers.Serializer):
+    id = serializers.IntegerField(read_only=True)
+    reference = serializers.CharField(read_only=True)
+
+
+STAGE_RESULT_FIELDS = [
+    "id",
+    "run",
+    "stage",
+    "analysis_version",
+    "inputs_hash",
+    "created_at",
+    "area_model",
+    "n_readings",
+    "normal_force_n",
+    "initial_normal_stress_kpa",
+    "failure_criterion",
+    "failure_shear_stress_kpa",
+    "failure_normal_stress_kpa",
+    "failure_horizontal_mm",
+    "failure_vertical_mm",
+    "failure_secant_phi_deg",
+    "ultimate_shear_stress_kpa",
+    "ultimate_normal_stress_kpa",
+    "ultimate_horizontal_mm",
+    "residual_shear_stress_kpa",
+    "residual_normal_stress_kpa",
+    "residual_horizontal_mm",
+    "residual_vertical_mm",
+    "max_dilation_angle_deg",
+    "max_dilation_horizontal_mm",
+    "measured_rate_mm_per_min",
+    "max_rate_mm_per_min",
+    "phase",
+    "shear_stress_u_kpa",
+    "normal_stress_u_kpa",
+    "flags",
+]
+
+
+class StageResultOut(OutputSerializer):
+    """One stage reduction's result row, with the stage's number, test set and specimen."""
+
+    stage_number = serializers.IntegerField(source="stage.stage_number", read_only=True)
+    test = RecordRefOut(source="stage.test", read_only=True)
+    specimen = RecordRefOut(source="stage.specimen", read_only=True)
+
+    class Meta:
+        model = StageResult
+        fields = [*STAGE_RESULT_FIELDS, "stage_number", "test", "specimen"]
+
+
+class EnvelopeResultOut(OutputSerializer):
+    """One envelope fit of a test set. Interpretation (``characteristic``) is labelled as such."""
+
+    project = serializers.IntegerField(source="test.project_id", read_only=True)
+    test_reference = serializers.CharField(source="test.reference", read_only=True)
+
+    class Meta:
+        model = EnvelopeResult
+        fields = [
+            "id",
+            "run",
+            "test",
+            "test_reference",
+            "project",
+            "envelope_type",
+            "analysis_version",
+            "inputs_hash",
+            "created_at",
+            "fit_method",
+            "through_origin",
+            "points",
+            "n",
+            "cohesion_kpa",
+            "friction_angle_deg",
+            "tan_phi",
+            "stderr_cohesion_kpa",
+            "stderr_tan_phi",
+            "cohesion_ci95_low_kpa",
+            "cohesion_ci95_high_kpa",
+            "friction_angle_ci95_low_deg",
+            "friction_angle_ci95_high_deg",
+            "corr_cohesion_tan_phi",
+            "r_squared",
+            "r_squared_kind",
+            "normal_stress_min_kpa",
+            "normal_stress_max_kpa",
+            "through_origin_alternative",
+            "warnings",
+            "characteristic",
+        ]
+
+
+class RecomputeIn(serializers.Serializer):
+    reason = serializers.CharField(max_length=200, help_text="Why the results are recomputed.")
+
+
+class StageExclusionIn(serializers.Serializer):
+    envelope_type = serializers.ChoiceField(choices=EnvelopeType.choices)
+    reason = serializers.CharField(max_length=2000, required=False, allow_blank=True)
+
+
+@extend_schema_serializer(many=False)
+class ThroughputOut(serializers.Serializer):
+    """Samples the caller may see, per lifecycle state, plus those open and past their due date."""
+
+    counts = serializers.DictField(
+        child=serializers.IntegerField(),
+        help_text="Samples per state: " + ", ".join(SampleStatus.values) + ".",
+    )
+    overdue = serializers.IntegerField(help_text="Open samples past their due date.")
+    total = serializers.IntegerField()

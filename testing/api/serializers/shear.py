@@ -1,0 +1,105 @@
+"""Direct shear test sets, their stages, and the stages' readings."""
+
+from __future__ import annotations
+
+from django.db.models import Q
+from rest_framework import serializers
+
+from testing import access
+from testing.api.fields import ScopedRelatedField
+from testing.api.serializers.base import InputSerializer, OutputSerializer
+from testing.models import (
+    ConsolidationReading,
+    DirectShearTest,
+    Project,
+    ShearReading,
+    ShearStage,
+    Specimen,
+)
+
+TEST_FIELDS = [
+    "reference",
+    "method",
+    "method_edition",
+    "apparatus",
+    "box_shape",
+    "box_length_mm",
+    "box_width_mm",
+    "condition",
+    "shear_type",
+    "area_model",
+    "requested_on",
+    "due_on",
+    "instructions",
+]
+
+
+class TestSetOut(OutputSerializer):
+    stage_count = serializers.IntegerField(read_only=True)
+
+    class Meta:
+        model = DirectShearTest
+        fields = ["id", "project", *TEST_FIELDS, "created_at", "released_at", "stage_count"]
+
+
+class TestSetIn(InputSerializer):
+    """A new test set. ``created_by`` is the caller; ``released_at`` is set only by a signed report."""
+
+    project = ScopedRelatedField(model=Project, scope=access.project_filter)
+
+    class Meta:
+        model = DirectShearTest
+        fields = ["project", *TEST_FIELDS]
+        extra_kwargs = {"method_edition": {"required": False}}
+
+
+STAGE_FIELDS = [
+    "stage_number",
+    "loading",
+    "direct_mass_kg",
+    "hanger_mass_kg",
+    "weights_mass_kg",
+    "lever_ratio",
+    "beam_offset_force_n",
+    "applied_normal_stress_kpa",
+    "force_unit",
+    "force_factor_n_per_unit",
+    "force_zero_reading",
+    "rate_mm_per_min",
+    "consolidation_started_at",
+    "shear_started_at",
+    "traverses",
+    "notes",
+]
+
+
+class StageOut(OutputSerializer):
+    class Meta:
+        model = ShearStage
+        fields = ["id", "test", "specimen", *STAGE_FIELDS]
+
+
+def _unreleased_tests(user: access.AnyUser) -> Q:
+    # Staff see every test set; a reported set's stages cannot change, so it is not offered.
+    return access.test_filter(user) & Q(released_at__isnull=True)
+
+
+class StageIn(InputSerializer):
+    test = ScopedRelatedField(model=DirectShearTest, scope=_unreleased_tests)
+    specimen = ScopedRelatedField(model=Specimen, scope=access.specimen_filter)
+
+    class Meta:
+        model = ShearStage
+        fields = ["test", "specimen", *STAGE_FIELDS]
+
+
+class ShearReadingOut(OutputSerializer):
+    class Meta:
+        model = ShearReading
+        fields = ["traverse", "seq", "elapsed_min", "horizontal_mm", "vertical_mm", "force_reading"]
+
+
+class ConsolidationReadingOut(OutputSerializer):
+    class Meta:
+        model = ConsolidationReading
+        fields = ["elapsed_min", "settlement_mm"]

@@ -1,0 +1,1 @@
+"""API viewsets, one module per sub-domain; ``testing.api.routes.register`` wires them."""

@@ -1,0 +1,252 @@
+"""A world for API tests: for each client organisation a full record tree with a released test set,
+its stages, readings, results and an envelope; plus an unreleased test set for client A.
+
+Results rows here are fixtures for access tests (made directly, not computed): these tests check who
+sees what, not the numbers.
+"""
+
+from __future__ import annotations
+
+import itertools
+from dataclasses import dataclass
+from datetime import date, timedelta
+from decimal import Decimal
+from typing import Any
+
+import pytest
+from django.contrib.auth.models import User
+from django.utils import timezone
+from knox.models import AuthToken
+from rest_framework.test import APIClient
+
+from testing.models import (
+    ComputationRun,
+    ConsolidationReading,
+    DirectShearTest,
+    EnvelopeResult,
+    Organisation,
+    Project,
+    RunKind,
+    RunState,
+    Sample,
+    ShearReading,
+    ShearStage,
+    Specimen,
+    StageResult,
+)
+from testing.services.records import specimen_create
+from testing.services.release import test_mark_released
+from testing.services.shear_setup import shear_test_create, stage_create
+from tests.conftest import Cast, Records
+
+PERSONAS = (
+    "anonymous",
+    "client_a",
+    "client_b",
+    "technician",
+    "checker",
+    "approver",
+    "manager",
+    "deactivated",
+)
+
+_cache_ids = itertools.count()
+
+
+@pytest.fixture(autouse=True)
+def _isolated_throttles(settings: Any) -> None:
+    """Each test gets its own in-memory cache (throttle counters) and generous rates; the
+    throttle tests set their own rates."""
+    settings.CACHES = {
+        "default": {
+            "BACKEND": "django.core.cache.backends.locmem.LocMemCache",
+            "LOCATION": f"api-tests-{next(_cache_ids)}",
+        }
+    }
+    settings.TAULINE_API_THROTTLE_RATES = {
+        "anon": "100000/hour",
+        "user": "100000/hour",
+        "token": "100000/hour",
+    }
+
+
+@dataclass(frozen=True)
+class OrgWorld:
+    organisation: Organisation
+    project: Project
+    borehole: Any
+    sample: Sample
+    specimen: Specimen
+    test: DirectShearTest
+    stage: ShearStage
+    run: ComputationRun
+    result: StageResult
+    envelope: EnvelopeResult
+
+
+@dataclass(frozen=True)
+class World:
+    cast: Cast
+    a: OrgWorld
+    b: OrgWorld
+    unreleased_a: DirectShearTest
+
+
+def _specimen(cast: Cast, sample: Sample, reference: str) -> Specimen:
+    return specimen_create(
+        user=cast.technician,
+        sample=sample,
+        reference=reference,
+        depth_top_m=Decimal("1.25"),
+        preparation="undisturbed",
+        shape="square",
+        length_mm=60.0,
+        width_mm=60.0,
+        height_mm=20.0,
+        initial_mass_g=140.0,
+    )
+
+
+def _test_set(cast: Cast, project: Project, reference: str) -> DirectShearTest:
+    return shear_test_create(
+        user=cast.technician,
+        project=project,
+        reference=reference,
+        method="bs-1377-7",
+        box_length_mm=60.0,
+        box_width_mm=60.0,
+        requested_on=date(2026, 11, 3),
+    )
+
+
+def _stage(cast: Cast, test: DirectShearTest, specimen: Specimen) -> ShearStage:
+    stage = stage_create(
+        user=cast.technician,
+        test=test,
+        specimen=specimen,
+        stage_number=1,
+        direct_mass_kg=1.0,
+        hanger_mass_kg=2.0,
+        weights_mass_kg=5.0,
+        lever_ratio=10.0,
+    )
+    ConsolidationReading.objects.bulk_create(
+        ConsolidationReading(stage=stage, elapsed_min=t, settlement_mm=0.01 * t) for t in range(3)
+    )
+    ShearReading.objects.bulk_create(
+        ShearReading(
+            stage=stage,
+            seq=i,
+            elapsed_min=0.5 * i,
+            horizontal_mm=0.1 * i,
+            vertical_mm=0.0,
+            force_reading=10.0 * i,
+        )
+        for i in range(1, 4)
+    )
+    return stage
+
+
+def make_result_rows(stage: ShearStage, *, at: Any = None) -> tuple[ComputationRun, StageResult]:
+    run = ComputationRun.objects.create(
+        kind=RunKind.STAGE_REDUCTION,
+        subject_key=f"stage:{stage.pk}",
+        test=stage.test,
+        stage=stage,
+        state=RunState.SUCCEEDED,
+        reason="fixture",
+    )
+    result = StageResult.objects.create(
+        run=run,
+        stage=stage,
+        analysis_version="fixture",
+        inputs_hash="0" * 64,
+        area_model="nominal",
+        n_readings=3,
+        normal_force_n=785.0,
+        initial_normal_stress_kpa=218.0,
+        failure_criterion="peak",
+        failure_shear_stress_kpa=120.0,
+        failure_normal_stress_kpa=218.0,
+        failure_horizontal_mm=0.3,
+        failure_vertical_mm=0.0,
+        failure_secant_phi_deg=28.8,
+    )
+    if at is not None:
+        StageResult.objects.filter(pk=result.pk).update(created_at=at)
+        result.refresh_from_db()
+    return run, result
+
+
+def make_envelope_rows(test: DirectShearTest) -> EnvelopeResult:
+    run = ComputationRun.objects.create(
+        kind=RunKind.ENVELOPE_FIT,
+        subject_key=f"test:{test.pk}:peak",
+        test=test,
+        envelope_type="peak",
+        state=RunState.SUCCEEDED,
+        reason="fixture",
+    )
+    return EnvelopeResult.objects.create(
+        run=run,
+        test=test,
+        envelope_type="peak",
+        analysis_version="fixture",
+        inputs_hash="0" * 64,
+        fit_method="ordinary least squares",
+        points=[],
+        n=3,
+        cohesion_kpa=5.0,
+        friction_angle_deg=30.0,
+        tan_phi=0.577,
+        normal_stress_min_kpa=50.0,
+        normal_stress_max_kpa=200.0,
+    )
+
+
+def _org_world(cast: Cast, records: Records, prefix: str) -> OrgWorld:
+    specimen = _specimen(cast, records.sample, "S1")
+    test = _test_set(cast, records.project, f"DS-{prefix}")
+    stage = _stage(cast, test, specimen)
+    run, result = make_result_rows(stage)
+    envelope = make_envelope_rows(test)
+    test_mark_released(test=test, at=timezone.now() + timedelta(seconds=1))
+    return OrgWorld(
+        organisation=records.project.organisation,
+        project=records.project,
+        borehole=records.borehole,
+        sample=records.sample,
+        specimen=specimen,
+        test=test,
+        stage=stage,
+        run=run,
+        result=result,
+        envelope=envelope,
+    )
+
+
+@pytest.fixture
+def world(cast: Cast, records_a: Records, records_b: Records) -> World:
+    a = _org_world(cast, records_a, "A")
+    b = _org_world(cast, records_b, "B")
+    unreleased = _test_set(cast, records_a.project, "DS-A-OPEN")
+    return World(cast=cast, a=a, b=b, unreleased_a=unreleased)
+
+
+def persona_user(cast: Cast, persona: str) -> User | None:
+    return None if persona == "anonymous" else getattr(cast, persona)
+
+
+def token_client(user: User | None) -> APIClient:
+    """A client signed with an API token, as a script would be (knox issues tokens to inactive
+    users too when asked directly; the API refuses them)."""
+    client = APIClient()
+    if user is not None:
+        _, token = AuthToken.objects.create(user=user)
+        client.credentials(HTTP_AUTHORIZATION=f"Token {token}")
+    return client
+
+
+@pytest.fixture
+def clients(cast: Cast) -> dict[str, APIClient]:
+    return {persona: token_client(persona_user(cast, persona)) for persona in PERSONAS}

@@ -209,6 +209,8 @@ REST_FRAMEWORK = {
     "EXCEPTION_HANDLER": "testing.api.errors.api_exception_handler",
     "DEFAULT_SCHEMA_CLASS": "drf_spectacular.openapi.AutoSchema",
     "TEST_REQUEST_DEFAULT_FORMAT": "json",
+    # JSON bodies only; an endpoint that takes a file upload names its own parsers.
+    "DEFAULT_PARSER_CLASSES": ["rest_framework.parsers.JSONParser"],
 }
 REST_KNOX = {
     "AUTH_HEADER_PREFIX": "Token",
@@ -226,6 +228,11 @@ SPECTACULAR_SETTINGS = {
     "SWAGGER_UI_FAVICON_HREF": "SIDECAR",
     "REDOC_DIST": "SIDECAR",
     "COMPONENT_SPLIT_REQUEST": True,
+    "SCHEMA_PATH_PREFIX": r"/api/v[0-9]+",
+    "ENUM_NAME_OVERRIDES": {
+        "SampleStatusEnum": "testing.models.samples.SampleStatus",
+        "ShapeEnum": "testing.models.direct_shear.BoxShape",
+    },
 }
 
 # --- Security (tightened further when DEBUG is off) -------------------------------------------

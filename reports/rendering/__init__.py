@@ -1,0 +1,1 @@
+"""Report rendering in three steps: context (all queries) -> HTML (templates) -> PDF (WeasyPrint)."""

@@ -1,0 +1,192 @@
+"""PDF signatures: PAdES baseline (B-B) with the lab's key, and verification. The only pyHanko import.
+
+The key and certificate come from ``TAULINE_SIGNING_KEY_FILE`` / ``TAULINE_SIGNING_CERT_FILE``
+(PEM). Without them, a self-signed lab certificate is made on first use under
+``MEDIA_ROOT/keys`` — fine for development and the demo; a lab should use its own.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import hashlib
+import io
+import os
+import threading
+from dataclasses import dataclass
+from pathlib import Path
+
+from asn1crypto import x509 as asn1_x509
+from cryptography import x509
+from cryptography.hazmat.primitives import hashes, serialization
+from cryptography.hazmat.primitives.asymmetric import ec
+from cryptography.x509.oid import NameOID
+from django.conf import settings
+from pyhanko.pdf_utils.incremental_writer import IncrementalPdfFileWriter
+from pyhanko.pdf_utils.reader import PdfFileReader
+from pyhanko.sign import signers
+from pyhanko.sign.fields import SigSeedSubFilter
+from pyhanko.sign.validation import validate_pdf_signature
+from pyhanko.sign.validation.status import SignatureCoverageLevel
+from pyhanko_certvalidator import ValidationContext
+
+SIGNATURE_FIELD = "TaulineLabSignature"
+_lock = threading.Lock()
+
+
+def sha256_hex(data: bytes) -> str:
+    return hashlib.sha256(data).hexdigest()
+
+
+def key_paths() -> tuple[Path, Path]:
+    key = settings.TAULINE_SIGNING_KEY_FILE
+    cert = settings.TAULINE_SIGNING_CERT_FILE
+    if key and cert:
+        return Path(key), Path(cert)
+    folder = Path(settings.MEDIA_ROOT) / "keys"
+    return folder / "lab-signing-key.pem", folder / "lab-signing-cert.pem"
+
+
+def make_lab_certificate(
+    *, common_name: str | None = None, days: int = 3650, overwrite: bool = False
+) -> tuple[Path, Path]:
+    """Write a self-signed P-256 key and certificate for signing reports (development, demo)."""
+    key_path, cert_path = key_paths()
+    if key_path.exists() and cert_path.exists() and not overwrite:
+        return key_path, cert_path
+    key = ec.generate_private_key(ec.SECP256R1())
+    name = x509.Name(
+        [
+            x509.NameAttribute(
+                NameOID.COMMON_NAME, common_name or f"{settings.TAULINE_LAB_NAME} report signing"
+            ),
+            x509.NameAttribute(NameOID.ORGANIZATION_NAME, settings.TAULINE_LAB_NAME),
+        ]
+    )
+    now = dt.datetime.now(dt.UTC)
+    cert = (
+        x509.CertificateBuilder()
+        .subject_name(name)
+        .issuer_name(name)
+        .public_key(key.public_key())
+        .serial_number(x509.random_serial_number())
+        .not_valid_before(now - dt.timedelta(days=1))
+        .not_valid_after(now + dt.timedelta(days=days))
+        .add_extension(x509.BasicConstraints(ca=True, path_length=None), critical=True)
+        .add_extension(
+            x509.KeyUsage(
+                digital_signature=True,
+                content_commitment=True,
+                key_encipherment=False,
+                data_encipherment=False,
+                key_agreement=False,
+                key_cert_sign=True,
+                crl_sign=False,
+                encipher_only=False,
+                decipher_only=False,
+            ),
+            critical=True,
+        )
+        .sign(key, hashes.SHA256())
+    )
+    key_path.parent.mkdir(parents=True, exist_ok=True)
+    fd = os.open(key_path, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o600)
+    with os.fdopen(fd, "wb") as fh:
+        fh.write(
+            key.private_bytes(
+                serialization.Encoding.PEM,
+                serialization.PrivateFormat.PKCS8,
+                serialization.NoEncryption(),
+            )
+        )
+    cert_path.write_bytes(cert.public_bytes(serialization.Encoding.PEM))
+    return key_path, cert_path
+
+
+def _ensure_keys() -> tuple[Path, Path]:
+    key_path, cert_path = key_paths()
+    if not (key_path.exists() and cert_path.exists()):
+        if settings.TAULINE_SIGNING_KEY_FILE:
+            raise FileNotFoundError(
+                f"TAULINE_SIGNING_KEY_FILE / TAULINE_SIGNING_CERT_FILE point at {key_path} and "
+                f"{cert_path}, which do not both exist."
+            )
+        with _lock:
+            make_lab_certificate()
+    return key_path, cert_path
+
+
+def lab_certificate() -> asn1_x509.Certificate:
+    _, cert_path = _ensure_keys()
+    data = cert_path.read_bytes()
+    der = x509.load_pem_x509_certificate(data).public_bytes(serialization.Encoding.DER)
+    return asn1_x509.Certificate.load(der)
+
+
+def sign_pdf(pdf: bytes, *, reason: str, signer_name: str) -> bytes:
+    """PAdES B-B signature over the whole PDF with the lab's key."""
+    key_path, cert_path = _ensure_keys()
+    signer = signers.SimpleSigner.load(str(key_path), str(cert_path))
+    if signer is None:
+        raise RuntimeError(
+            f"Could not load the signing key {key_path} and certificate {cert_path}."
+        )
+    meta = signers.PdfSignatureMetadata(
+        field_name=SIGNATURE_FIELD,
+        subfilter=SigSeedSubFilter.PADES,
+        md_algorithm="sha256",
+        reason=reason,
+        location=settings.TAULINE_LAB_NAME,
+        name=signer_name,
+    )
+    writer = IncrementalPdfFileWriter(io.BytesIO(pdf))
+    out = io.BytesIO()
+    signers.PdfSigner(meta, signer=signer).sign_pdf(writer, output=out)
+    return out.getvalue()
+
+
+@dataclass(frozen=True)
+class SignatureCheck:
+    """What the embedded signature says: ``valid`` only if intact, trusted and covering the file."""
+
+    signed: bool
+    intact: bool = False
+    trusted: bool = False
+    covers_whole_file: bool = False
+    signer: str = ""
+    signed_at: dt.datetime | None = None
+    problem: str = ""
+
+    @property
+    def valid(self) -> bool:
+        return self.signed and self.intact and self.trusted and self.covers_whole_file
+
+
+def verify_pdf(pdf: bytes) -> SignatureCheck:
+    """Check the lab signature of a PDF against the lab's own certificate, offline."""
+    try:
+        reader = PdfFileReader(io.BytesIO(pdf), strict=False)
+        signatures = reader.embedded_signatures
+    except Exception as exc:  # a damaged file is an answer, not a crash
+        return SignatureCheck(signed=False, problem=f"Not a readable PDF: {type(exc).__name__}")
+    if not signatures:
+        return SignatureCheck(signed=False, problem="The PDF carries no signature.")
+    sig = signatures[-1]
+    try:
+        context = ValidationContext(trust_roots=[lab_certificate()], allow_fetching=False)
+        status = validate_pdf_signature(sig, context)
+    except Exception as exc:
+        return SignatureCheck(
+            signed=True, problem=f"Signature could not be validated: {type(exc).__name__}: {exc}"
+        )
+    whole = status.coverage == SignatureCoverageLevel.ENTIRE_FILE
+    return SignatureCheck(
+        signed=True,
+        intact=bool(status.intact and status.valid),
+        trusted=bool(status.trusted),
+        covers_whole_file=whole,
+        signer=status.signing_cert.subject.human_friendly if status.signing_cert else "",
+        signed_at=status.signer_reported_dt,
+        problem=""
+        if (status.intact and status.valid and status.trusted and whole)
+        else status.summary(),
+    )

@@ -1,0 +1,14 @@
+"""Background work for reports: render, sign and store an issued revision (queue "reports")."""
+
+from __future__ import annotations
+
+from celery import shared_task
+
+from reports import services
+
+
+@shared_task(name="reports.render_revision", queue="reports", acks_late=True)
+def render_revision(revision_id: int) -> str:
+    """Safe to run twice: only a revision still being issued is rendered and stored."""
+    done = services.revision_issue_complete(revision_id=revision_id)
+    return "issued" if done is not None else "nothing to do"

@@ -395,6 +395,7 @@ def _succeed(
 
 def _execute_stage(run: ComputationRun, token: str) -> None:
     from testing.services.direct_shear import stage_reduction_compute, stage_result_store
+    from testing.services.stage_context import stage_context_build
     from testing.services.stage_inputs import stage_inputs_load
 
     stage = run.stage
@@ -403,14 +404,20 @@ def _execute_stage(run: ComputationRun, token: str) -> None:
     inputs_hash = inputs.digest()
     _progress(run, token, 20)
     reused = _reusable(run, inputs_hash)
-    reduction = None if reused else stage_reduction_compute(stage, inputs)
+    context = stage_context_build(stage, inputs)
+    reduction = None if reused else stage_reduction_compute(stage, inputs, context)
     _progress(run, token, 80)
     with transaction.atomic():
         if not _lock_claim(run, token):
             return  # another delivery took over after our lease ran out; it will store the result
         if reduction is not None:
             stage_result_store(
-                run=run, stage=stage, inputs_hash=inputs_hash, reduction=reduction, inputs=inputs
+                run=run,
+                stage=stage,
+                inputs_hash=inputs_hash,
+                reduction=reduction,
+                inputs=inputs,
+                context=context,
             )
         _succeed(run, token, inputs_hash, reused)
         if reused is None:

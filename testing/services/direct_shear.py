@@ -26,6 +26,7 @@ from testing.models import (
     StageExclusion,
     StageResult,
 )
+from testing.services.stage_context import StageContext, stage_context_build
 from testing.services.stage_inputs import StageInputs, box_geometry, stage_inputs_load
 
 # Which failure point of a stage result feeds each envelope type.
@@ -53,10 +54,11 @@ def _flag_dict(flag: analysis.Flag) -> dict[str, Any]:
 
 
 def stage_reduction_compute(
-    stage: ShearStage, inputs: StageInputs | None = None
+    stage: ShearStage, inputs: StageInputs | None = None, context: StageContext | None = None
 ) -> analysis.StageReduction:
     """Reduce a stage in-process (used by runs, and by pages that draw the per-reading curves)."""
     inputs = inputs or stage_inputs_load(stage)
+    context = context or stage_context_build(stage, inputs)
     if inputs.time_min.size < 2:
         raise analysis.InsufficientDataError(
             f"Stage {stage.stage_number} has {inputs.time_min.size} shear reading(s); at least 2 are needed."
@@ -70,6 +72,7 @@ def stage_reduction_compute(
         normal_force_n=inputs.settings["normal_force_n"],
         box=box_geometry(stage.test),
         area_model=inputs.settings["area_model"],
+        max_rate_mm_per_min=context.max_rate_mm_per_min,
     )
 
 
@@ -80,6 +83,7 @@ def stage_result_store(
     inputs_hash: str,
     reduction: analysis.StageReduction,
     inputs: StageInputs,
+    context: StageContext,
 ) -> StageResult:
     """Write the result row of one successful stage reduction."""
     failure = reduction.peak
@@ -114,7 +118,8 @@ def stage_result_store(
         max_dilation_horizontal_mm=_finite_or_none(reduction.max_dilation_horizontal_mm),
         measured_rate_mm_per_min=_finite_or_none(reduction.measured_rate_mm_per_min),
         max_rate_mm_per_min=_finite_or_none(reduction.max_rate_mm_per_min),
-        flags=[_flag_dict(f) for f in reduction.flags],
+        phase=context.details,
+        flags=[_flag_dict(f) for f in (*context.flags, *reduction.flags)],
     )
 
 

@@ -164,7 +164,7 @@ def _phase(context: StageContext, stage: ShearStage, inputs: StageInputs) -> Non
     box = box_geometry(stage.test)
     area_cm2 = box.plan_area_mm2 / 100.0
     h0_mm = specimen.height_mm
-    common = {
+    common: dict[str, Any] = {
         "dry_mass_g": specimen.dry_mass_g,
         "particle_density_mg_m3": specimen.particle_density_mg_m3,
         "particle_density_measured": not specimen.particle_density_assumed,

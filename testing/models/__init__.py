@@ -14,6 +14,20 @@ from testing.models.direct_shear import (
     ShearType,
     TestCondition,
 )
+from testing.models.equipment import (
+    Apparatus,
+    CalibrationModel,
+    CalibrationRecord,
+    DisplacementGauge,
+    ForceDevice,
+    ForceDeviceKind,
+)
+from testing.models.imports import (
+    ImportedShearTest,
+    ImportLayout,
+    ImportState,
+    ReadingImport,
+)
 from testing.models.people import LabProfile, Role
 from testing.models.results import (
     ComputationRun,
@@ -29,6 +43,16 @@ from testing.models.samples import Sample, SampleEvent, SampleStatus, SampleType
 from testing.models.specimens import Preparation, Specimen, SpecimenShape
 
 __all__ = [
+    "Apparatus",
+    "CalibrationModel",
+    "CalibrationRecord",
+    "DisplacementGauge",
+    "ForceDevice",
+    "ForceDeviceKind",
+    "ImportLayout",
+    "ImportState",
+    "ImportedShearTest",
+    "ReadingImport",
     "AreaModel",
     "Borehole",
     "BoxShape",

@@ -83,6 +83,14 @@ class DirectShearTest(models.Model):
         editable=False,
         help_text="When a signed report first released these results to the client.",
     )
+    apparatus_record = models.ForeignKey(
+        "testing.Apparatus",
+        on_delete=models.PROTECT,
+        null=True,
+        blank=True,
+        related_name="shear_tests",
+        help_text="The machine from the equipment register (the text id above stays as typed).",
+    )
 
     class Meta:
         ordering = ["project", "reference"]
@@ -169,6 +177,15 @@ class ShearStage(models.Model):
     shear_started_at = models.DateTimeField(null=True, blank=True)
     traverses = models.PositiveSmallIntegerField(default=1, help_text="Number of shear traverses.")
     notes = models.TextField(blank=True)
+    force_calibration = models.ForeignKey(
+        "testing.CalibrationRecord",
+        on_delete=models.PROTECT,
+        null=True,
+        blank=True,
+        related_name="stages",
+        help_text="Force calibration in force on the test date; without one the factor and zero "
+        "reading above apply.",
+    )
 
     class Meta:
         ordering = ["test", "stage_number"]

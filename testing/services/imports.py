@@ -1,0 +1,575 @@
+"""Readings in: logger uploads and manual entry, each in one transaction, each asking for a
+stage reduction in that same transaction.
+
+An upload goes: size cap (before reading a byte more than the cap) → sha256 → duplicate check
+(same file, same stage → nothing added, the earlier import named) → the original stored under a
+generated name → parse and check every row (``testing.importers``) → all rows written in one
+transaction (COPY on PostgreSQL, batched inserts elsewhere) → reduction requested. Any bad row
+saves nothing and lists every bad row; a database failure part-way saves nothing and marks the
+import failed with the reason, so a retry starts clean.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import logging
+import struct
+from collections.abc import Callable, Iterator, Mapping, Sequence
+from contextlib import contextmanager
+from dataclasses import dataclass
+from pathlib import PurePosixPath
+from typing import Any, Protocol
+
+import numpy as np
+from django.conf import settings
+from django.contrib.auth.models import User
+from django.core.files.base import ContentFile
+from django.db import DatabaseError, connection, transaction
+from django.db.models import Field
+from django.utils import timezone
+
+from testing import access
+from testing.importers.layout import CANONICAL_LAYOUT, ColumnMap, Layout, LayoutError
+from testing.importers.readings import (
+    ParsedReadings,
+    Preview,
+    RowError,
+    _validate_rows,
+    parse_readings,
+    preview_readings,
+)
+from testing.importers.xlsx import UnsafeSpreadsheet, check_archive, is_xlsx
+from testing.models import (
+    ConsolidationReading,
+    ForceUnit,
+    ImportLayout,
+    ImportState,
+    ReadingImport,
+    ShearReading,
+    ShearStage,
+)
+from testing.services.errors import NotAllowed, ServiceError
+
+log = logging.getLogger(__name__)
+
+BATCH_ROWS = 5000  # rows per bulk_create batch / COPY chunk
+
+
+class UploadTooLarge(ServiceError):
+    """The upload is over the size cap; it was not stored or parsed."""
+
+
+class ReadingsRejected(ServiceError):
+    """Manual rows with problems; ``errors`` lists every one, and nothing was saved."""
+
+    def __init__(self, message: str, errors: list[RowError]) -> None:
+        super().__init__(message)
+        self.errors = errors
+
+
+class Upload(Protocol):
+    """What the service needs of an upload: Django's ``UploadedFile`` and ``File`` qualify."""
+
+    name: str | None
+
+    def read(self, size: int = ..., /) -> bytes: ...
+
+
+def max_upload_bytes() -> int:
+    return int(settings.TAULINE_MAX_UPLOAD_BYTES)
+
+
+def _max_unpacked_bytes() -> int:
+    # An XLSX of numbers unpacks to roughly 5–20× its size; allow 20× the upload cap.
+    return 20 * max_upload_bytes()
+
+
+def _require_technician(user: User) -> None:
+    if not access.can_enter_readings(user):
+        raise NotAllowed("Only technicians and the lab manager can enter or import readings.")
+
+
+def _require_open(stage: ShearStage) -> None:
+    if stage.test.released_at is not None:
+        raise ServiceError("This test set has been reported; its readings cannot change.")
+
+
+def display_name(filename: str | None) -> str:
+    """The uploaded name reduced to its last part, printable, for display only."""
+    base = PurePosixPath((filename or "upload").replace("\\", "/")).name
+    clean = "".join(ch for ch in base if ch.isprintable()).strip() or "upload"
+    return clean[:200]
+
+
+def _read_capped(upload: Upload) -> bytes:
+    """Read the upload, refusing it as soon as it is known to be over the cap."""
+    cap = max_upload_bytes()
+    size = getattr(upload, "size", None)
+    if isinstance(size, int) and size > cap:
+        raise UploadTooLarge(
+            f"The file is {size} bytes; the limit is {cap} bytes. Nothing was saved."
+        )
+    if hasattr(upload, "seek"):
+        upload.seek(0)
+    data = upload.read(cap + 1)
+    if len(data) > cap:
+        raise UploadTooLarge(f"The file is over the limit of {cap} bytes. Nothing was saved.")
+    return data
+
+
+def layout_for(layout: ImportLayout | None) -> Layout:
+    """The parser's layout for a saved layout (None = the canonical CSV layout)."""
+    if layout is None:
+        return CANONICAL_LAYOUT
+    data = {
+        "columns": layout.columns,
+        "delimiter": layout.delimiter,
+        "decimal_comma": layout.decimal_comma,
+        "header_row": layout.header_row,
+        "sheet_name": layout.sheet_name,
+        "phase_values": layout.phase_values,
+        "vertical_sign": layout.vertical_sign,
+        "rebase_each_phase": layout.rebase_each_phase,
+    }
+    try:
+        return Layout.from_mapping(layout.name, data)
+    except LayoutError as exc:
+        raise ServiceError(str(exc)) from exc
+
+
+def import_layout_save(
+    *, user: User, name: str, columns: Mapping[str, Any], **options: Any
+) -> ImportLayout:
+    """Save a reusable column mapping for the lab; it must make a usable layout."""
+    _require_technician(user)
+    try:
+        Layout.from_mapping(name, {"columns": columns, **options})
+    except LayoutError as exc:
+        raise ServiceError(str(exc)) from exc
+    row, _ = ImportLayout.objects.update_or_create(
+        name=name, defaults={"columns": dict(columns), "created_by": user, **options}
+    )
+    return row
+
+
+def request_stage_reduction(*, stage: ShearStage, user: User | None, reason: str) -> None:
+    """Ask for the stage to be reduced again; the run is queued on commit of the caller's transaction."""
+    from testing.services.computation import stage_reduction_request
+
+    stage_reduction_request(stage=stage, user=user, reason=reason)
+
+
+def _stage_force_unit(stage: ShearStage) -> str:
+    return "div" if stage.force_unit == ForceUnit.DIVISIONS else "N"
+
+
+# --- preview ------------------------------------------------------------------------------------
+
+
+def stage_readings_preview(
+    *,
+    user: User,
+    stage: ShearStage,
+    upload: Upload,
+    layout: ImportLayout | None = None,
+    n: int = 10,
+) -> Preview:
+    """The header, the detected columns and the first rows; saves nothing."""
+    _require_technician(user)
+    data = _read_capped(upload)
+    try:
+        if is_xlsx(data, upload.name or ""):
+            check_archive(data, max_uncompressed_bytes=_max_unpacked_bytes())
+        return preview_readings(
+            data,
+            filename=upload.name or "",
+            layout=layout_for(layout),
+            n=n,
+            max_uncompressed_bytes=_max_unpacked_bytes(),
+        )
+    except UnsafeSpreadsheet as exc:
+        raise ServiceError(str(exc)) from exc
+
+
+# --- import -------------------------------------------------------------------------------------
+
+
+def stage_readings_import(
+    *, user: User, stage: ShearStage, upload: Upload, layout: ImportLayout | None = None
+) -> ReadingImport:
+    """Import one logger file into a stage. Returns the import record; look at its ``state``:
+
+    - ``succeeded``: readings saved (phases in the file replace the stage's readings of that phase);
+    - ``duplicate``: the same file was already imported for this stage (``duplicate_of``); 0 added;
+    - ``rejected``: bad rows (``errors``: row, column, value, reason); 0 saved;
+    - ``failed``: the database failed part-way (``reason``); 0 saved; importing again is safe.
+
+    Raises :class:`UploadTooLarge` (nothing stored) and ``ServiceError`` for refusals.
+    """
+    _require_technician(user)
+    _require_open(stage)
+    parser_layout = layout_for(layout)
+    data = _read_capped(upload)
+    digest = hashlib.sha256(data).hexdigest()
+    name = display_name(upload.name)
+
+    earlier = (
+        ReadingImport.objects.filter(stage=stage, sha256=digest, state=ImportState.SUCCEEDED)
+        .order_by("-uploaded_at", "-id")
+        .first()
+    )
+    if earlier is not None:
+        return ReadingImport.objects.create(
+            stage=stage,
+            layout=layout,
+            layout_snapshot=parser_layout.snapshot(),
+            original_file=earlier.original_file.name,
+            original_name=name,
+            size_bytes=len(data),
+            sha256=digest,
+            state=ImportState.DUPLICATE,
+            duplicate_of=earlier,
+            reason=(
+                f"The same file (sha256 {digest[:12]}…) was already imported into this stage as "
+                f"import #{earlier.pk}, {earlier.original_name}, on "
+                f"{timezone.localtime(earlier.uploaded_at):%Y-%m-%d %H:%M}. Nothing was added."
+            ),
+            uploaded_by=user,
+            finished_at=timezone.now(),
+        )
+
+    record = ReadingImport(
+        stage=stage,
+        layout=layout,
+        layout_snapshot=parser_layout.snapshot(),
+        original_name=name,
+        size_bytes=len(data),
+        sha256=digest,
+        uploaded_by=user,
+    )
+    # The original is stored (and the record committed) before parsing, so even a file that
+    # breaks the parser is kept with its hash.
+    record.original_file.save(name, ContentFile(data), save=False)
+    record.save()
+
+    try:
+        if is_xlsx(data, name):
+            check_archive(data, max_uncompressed_bytes=_max_unpacked_bytes())
+        parsed = parse_readings(
+            data,
+            filename=name,
+            layout=parser_layout,
+            stage_force_unit=_stage_force_unit(stage),
+            max_uncompressed_bytes=_max_unpacked_bytes(),
+        )
+    except UnsafeSpreadsheet as exc:
+        _finish(record, ImportState.REJECTED, reason=str(exc))
+        return record
+    if not parsed.ok:
+        _finish(
+            record,
+            ImportState.REJECTED,
+            reason=parsed.error_summary,
+            errors=[e.as_dict() for e in parsed.errors],
+        )
+        return record
+
+    try:
+        with transaction.atomic():
+            locked = ShearStage.objects.select_for_update().get(pk=stage.pk)
+            replaced = _replace_readings(locked, parsed)
+            superseded = ReadingImport.objects.filter(
+                stage=stage, state=ImportState.SUCCEEDED
+            ).exclude(pk=record.pk)
+            superseded.update(state=ImportState.SUPERSEDED)
+            record.state = ImportState.SUCCEEDED
+            record.consolidation_rows = int(parsed.consolidation_elapsed_min.size)
+            record.shear_rows = int(parsed.shear_elapsed_min.size)
+            record.replaced_rows = replaced
+            record.finished_at = timezone.now()
+            record.save(
+                update_fields=[
+                    "state",
+                    "consolidation_rows",
+                    "shear_rows",
+                    "replaced_rows",
+                    "finished_at",
+                ]
+            )
+            request_stage_reduction(stage=locked, user=user, reason="readings imported")
+    except DatabaseError as exc:
+        _mark_failed(record, exc)
+        return record
+    return record
+
+
+def _finish(
+    record: ReadingImport, state: str, *, reason: str, errors: list[dict[str, Any]] | None = None
+) -> None:
+    record.state = state
+    record.reason = reason
+    record.errors = errors or []
+    record.finished_at = timezone.now()
+    record.save(update_fields=["state", "reason", "errors", "finished_at"])
+
+
+def _mark_failed(record: ReadingImport, exc: Exception) -> None:
+    """Record why the write failed; the readings were rolled back with the transaction."""
+    reason = (
+        f"The database failed while saving the readings ({type(exc).__name__}: "
+        f"{str(exc).strip()[:300]}). Nothing was saved; import the file again."
+    )
+    try:
+        if not connection.in_atomic_block and not connection.is_usable():
+            connection.close()  # the next query opens a fresh connection
+        ReadingImport.objects.filter(pk=record.pk).update(
+            state=ImportState.FAILED, reason=reason, finished_at=timezone.now()
+        )
+        record.state, record.reason = ImportState.FAILED, reason
+    except DatabaseError:
+        log.exception("Import %s failed and could not be marked failed", record.pk)
+        record.state, record.reason = ImportState.FAILED, reason
+
+
+# --- writing ------------------------------------------------------------------------------------
+
+
+def _replace_readings(stage: ShearStage, parsed: ParsedReadings) -> int:
+    """Replace the stage's readings of each phase present in ``parsed``; returns rows replaced."""
+    replaced = 0
+    if parsed.consolidation_elapsed_min.size:
+        replaced += ConsolidationReading.objects.filter(stage=stage).delete()[0]
+        ConsolidationReading.objects.bulk_create(
+            [
+                ConsolidationReading(stage=stage, elapsed_min=float(t), settlement_mm=float(s))
+                for t, s in zip(
+                    parsed.consolidation_elapsed_min,
+                    parsed.consolidation_settlement_mm,
+                    strict=True,
+                )
+            ],
+            batch_size=BATCH_ROWS,
+        )
+    if parsed.shear_elapsed_min.size:
+        replaced += ShearReading.objects.filter(stage=stage).delete()[0]
+        write_shear_rows(stage.pk, parsed)
+    return replaced
+
+
+ShearWriter = Callable[[ParsedReadings, int, int], None]
+
+
+def write_shear_rows(stage_id: int, parsed: ParsedReadings) -> None:
+    """Write every shear reading, batch by batch, inside the caller's transaction."""
+    n = int(parsed.shear_elapsed_min.size)
+    with _shear_writer(stage_id) as write:
+        for start in range(0, n, BATCH_ROWS):
+            _write_shear_batch(write, parsed, start, min(n, start + BATCH_ROWS))
+
+
+def _write_shear_batch(write: ShearWriter, parsed: ParsedReadings, start: int, stop: int) -> None:
+    """One batch (a seam for tests that make the database fail part-way)."""
+    write(parsed, start, stop)
+
+
+@contextmanager
+def _shear_writer(stage_id: int) -> Iterator[ShearWriter]:
+    if connection.vendor == "postgresql":
+        with _copy_writer(stage_id) as write:
+            yield write
+        return
+
+    def bulk(parsed: ParsedReadings, start: int, stop: int) -> None:
+        ShearReading.objects.bulk_create(
+            [
+                ShearReading(
+                    stage_id=stage_id,
+                    traverse=int(parsed.shear_traverse[k]),
+                    seq=int(parsed.shear_seq[k]),
+                    elapsed_min=float(parsed.shear_elapsed_min[k]),
+                    horizontal_mm=float(parsed.shear_horizontal_mm[k]),
+                    vertical_mm=float(parsed.shear_vertical_mm[k]),
+                    force_reading=float(parsed.shear_force[k]),
+                )
+                for k in range(start, stop)
+            ]
+        )
+
+    yield bulk
+
+
+# PostgreSQL binary COPY: 11-byte signature, flags, header-extension length; rows; -1 trailer.
+_PGCOPY_HEADER = b"PGCOPY\n\xff\r\n\x00" + struct.pack(">ii", 0, 0)
+_PGCOPY_TRAILER = struct.pack(">h", -1)
+_ROW_DTYPE = np.dtype(
+    [
+        ("n", ">i2"),
+        ("l_stage", ">i4"), ("stage", ">i8"),
+        ("l_traverse", ">i4"), ("traverse", ">i2"),
+        ("l_seq", ">i4"), ("seq", ">i4"),
+        ("l_t", ">i4"), ("t", ">f8"),
+        ("l_h", ">i4"), ("h", ">f8"),
+        ("l_v", ">i4"), ("v", ">f8"),
+        ("l_f", ">i4"), ("f", ">f8"),
+    ]
+)  # fmt: skip
+_SHEAR_COLUMNS = (
+    ("stage", "bigint"),
+    ("traverse", "smallint"),
+    ("seq", "integer"),
+    ("elapsed_min", "double precision"),
+    ("horizontal_mm", "double precision"),
+    ("vertical_mm", "double precision"),
+    ("force_reading", "double precision"),
+)
+
+
+def _binary_rows(stage_id: int, parsed: ParsedReadings, start: int, stop: int) -> bytes:
+    """Rows in PostgreSQL's binary COPY format, built column-wise with numpy (no Python loop)."""
+    rows = np.empty(stop - start, dtype=_ROW_DTYPE)
+    rows["n"] = 7
+    rows["l_stage"], rows["stage"] = 8, stage_id
+    rows["l_traverse"], rows["traverse"] = 2, parsed.shear_traverse[start:stop]
+    rows["l_seq"], rows["seq"] = 4, parsed.shear_seq[start:stop]
+    for key, values in (
+        ("t", parsed.shear_elapsed_min),
+        ("h", parsed.shear_horizontal_mm),
+        ("v", parsed.shear_vertical_mm),
+        ("f", parsed.shear_force),
+    ):
+        rows["l_" + key], rows[key] = 8, values[start:stop]
+    return rows.tobytes()
+
+
+@contextmanager
+def _copy_writer(stage_id: int) -> Iterator[ShearWriter]:
+    meta = ShearReading._meta
+    columns = []
+    for name, expected in _SHEAR_COLUMNS:
+        f = meta.get_field(name)
+        assert isinstance(f, Field)
+        if f.db_type(connection) != expected:  # the binary layout above depends on these types
+            raise DatabaseError(f"Column {name} is {f.db_type(connection)}, expected {expected}")
+        columns.append(connection.ops.quote_name(f.column))
+    sql = (
+        f"COPY {connection.ops.quote_name(meta.db_table)} ({', '.join(columns)}) "
+        "FROM STDIN (FORMAT BINARY)"
+    )
+    with connection.cursor() as cursor, cursor.cursor.copy(sql) as copy:
+        copy.write(_PGCOPY_HEADER)
+
+        def write(parsed: ParsedReadings, start: int, stop: int) -> None:
+            copy.write(_binary_rows(stage_id, parsed, start, stop))
+
+        yield write
+        copy.write(_PGCOPY_TRAILER)
+
+
+# --- manual entry -------------------------------------------------------------------------------
+
+_MANUAL_LAYOUT_COLUMNS = {
+    "time": ColumnMap("time_min", "min"),
+    "horizontal": ColumnMap("horizontal_mm", "mm"),
+    "vertical": ColumnMap("vertical_mm", "mm"),
+    "phase": ColumnMap("phase"),
+    "traverse": ColumnMap("traverse"),
+}
+_MANUAL_KEYS = ("phase", "traverse", "time_min", "horizontal_mm", "vertical_mm", "force")
+
+
+def _manual_layout(stage: ShearStage) -> Layout:
+    unit = _stage_force_unit(stage)
+    return Layout(
+        name="manual entry",
+        columns={**_MANUAL_LAYOUT_COLUMNS, "force": ColumnMap("force", unit)},
+    )
+
+
+def validate_manual_rows(stage: ShearStage, rows: Sequence[Mapping[str, object]]) -> ParsedReadings:
+    """Check grid rows with the importer's rules. Each row: ``phase`` (consolidation/shear,
+    default shear), ``time_min``, ``horizontal_mm``, ``vertical_mm`` (upward positive),
+    ``force`` (divisions or N, as the stage records) and optionally ``traverse``. Row numbers in
+    errors count grid rows from 1."""
+    layout = _manual_layout(stage)
+    columns = {
+        q: i for i, q in enumerate(("phase", "traverse", "time", "horizontal", "vertical", "force"))
+    }
+    result = ParsedReadings()
+    cells = (
+        (
+            number,
+            [
+                row.get("phase") or "shear",
+                row.get("traverse") if row.get("traverse") not in (None, "") else 1,
+                *(row.get(k) for k in _MANUAL_KEYS[2:]),
+            ],
+        )
+        for number, row in enumerate(rows, start=1)
+    )
+    _validate_rows(cells, columns, layout, None, result)
+    if result.ok and result.rows_read == 0:
+        result.add_error(RowError(1, "(row)", "", "no readings were entered"))
+    return result
+
+
+def stage_readings_enter(
+    *, user: User, stage: ShearStage, rows: Sequence[Mapping[str, object]]
+) -> tuple[int, int]:
+    """Save readings typed on the entry grid, replacing the phases entered; returns the counts
+    (consolidation, shear). Raises :class:`ReadingsRejected` listing every bad row (nothing saved)."""
+    _require_technician(user)
+    _require_open(stage)
+    parsed = validate_manual_rows(stage, rows)
+    if not parsed.ok:
+        raise ReadingsRejected(parsed.error_summary, parsed.errors)
+    with transaction.atomic():
+        locked = ShearStage.objects.select_for_update().get(pk=stage.pk)
+        _replace_readings(locked, parsed)
+        request_stage_reduction(stage=locked, user=user, reason="readings entered by hand")
+    return int(parsed.consolidation_elapsed_min.size), int(parsed.shear_elapsed_min.size)
+
+
+@dataclass(frozen=True)
+class ReducedRow:
+    """What the grid shows beside a typed row (None where the row cannot be reduced yet)."""
+
+    row: int
+    force_n: float | None
+    shear_stress_kpa: float | None
+    note: str = ""
+
+
+def manual_rows_reduce(stage: ShearStage, rows: Sequence[Mapping[str, object]]) -> list[ReducedRow]:
+    """Force [N] and shear stress on the nominal area [kPa] for each shear row, as typed.
+
+    Uses the stage's force calibration (the certificate if linked, else its factor and zero).
+    """
+    from testing.analysis import AnalysisError, BoxGeometry
+    from testing.services.equipment import stage_force_calibration
+
+    test = stage.test
+    box = (
+        BoxGeometry.circular(test.box_length_mm)
+        if test.box_shape == "circular"
+        else BoxGeometry.rectangular(test.box_length_mm, test.box_width_mm or test.box_length_mm)
+    )
+    calibration = stage_force_calibration(stage)
+    out: list[ReducedRow] = []
+    for number, row in enumerate(rows, start=1):
+        if (row.get("phase") or "shear") != "shear":
+            continue
+        try:
+            reading = float(str(row.get("force")).replace(",", "."))
+            force = float(calibration.force_n([reading])[0])
+        except (TypeError, ValueError) as exc:
+            out.append(
+                ReducedRow(
+                    number,
+                    None,
+                    None,
+                    str(exc) if isinstance(exc, AnalysisError) else "not a number",
+                )
+            )
+            continue
+        out.append(ReducedRow(number, force, 1000.0 * force / box.plan_area_mm2))
+    return out

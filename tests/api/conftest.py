@@ -82,6 +82,8 @@ class OrgWorld:
     run: ComputationRun
     result: StageResult
     envelope: EnvelopeResult
+    open_test: DirectShearTest  # not released: clients must not see it
+    spare_specimen: Specimen  # not yet in a stage
 
 
 @dataclass(frozen=True)
@@ -89,7 +91,6 @@ class World:
     cast: Cast
     a: OrgWorld
     b: OrgWorld
-    unreleased_a: DirectShearTest
 
 
 def _specimen(cast: Cast, sample: Sample, reference: str) -> Specimen:
@@ -204,13 +205,14 @@ def make_envelope_rows(test: DirectShearTest) -> EnvelopeResult:
     )
 
 
-def _org_world(cast: Cast, records: Records, prefix: str) -> OrgWorld:
+def org_world(cast: Cast, records: Records, prefix: str) -> OrgWorld:
     specimen = _specimen(cast, records.sample, "S1")
     test = _test_set(cast, records.project, f"DS-{prefix}")
     stage = _stage(cast, test, specimen)
     run, result = make_result_rows(stage)
     envelope = make_envelope_rows(test)
     test_mark_released(test=test, at=timezone.now() + timedelta(seconds=1))
+    open_test = _test_set(cast, records.project, f"DS-{prefix}-OPEN")
     return OrgWorld(
         organisation=records.project.organisation,
         project=records.project,
@@ -222,15 +224,14 @@ def _org_world(cast: Cast, records: Records, prefix: str) -> OrgWorld:
         run=run,
         result=result,
         envelope=envelope,
+        open_test=open_test,
+        spare_specimen=_specimen(cast, records.sample, "S2"),
     )
 
 
 @pytest.fixture
 def world(cast: Cast, records_a: Records, records_b: Records) -> World:
-    a = _org_world(cast, records_a, "A")
-    b = _org_world(cast, records_b, "B")
-    unreleased = _test_set(cast, records_a.project, "DS-A-OPEN")
-    return World(cast=cast, a=a, b=b, unreleased_a=unreleased)
+    return World(cast=cast, a=org_world(cast, records_a, "A"), b=org_world(cast, records_b, "B"))
 
 
 def persona_user(cast: Cast, persona: str) -> User | None:

@@ -72,7 +72,7 @@ def _require_password(
         actor=user,
         action="signature_refused",
         subject=_subject(revision),
-        new_value=meaning,
+        new=meaning,
         reason="password missing" if not password else "wrong password",
     )
     raise SignatureRefused("Re-enter your password to sign. Nothing was signed.")
@@ -529,7 +529,7 @@ def revision_supersede(*, user: User, revision: ReportRevision, reason: str) -> 
         raise ServiceError("Give the reason for the amendment.")
     with transaction.atomic():
         current = (
-            ReportRevision.objects.select_for_update().select_related("report").get(pk=revision.pk)
+            ReportRevision.objects.select_for_update(of=("self",)).select_related("report").get(pk=revision.pk)
         )
         if current.state != RevisionState.ISSUED:
             raise Conflict(f"{current.label} is not the current issued revision; amend that one.")

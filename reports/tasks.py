@@ -7,7 +7,7 @@ from celery import shared_task
 from reports import services
 
 
-@shared_task(name="reports.render_revision", queue="reports", acks_late=True)
+@shared_task(name="reports.render_revision", acks_late=True)  # routed to "reports"
 def render_revision(revision_id: int) -> str:
     """Safe to run twice: only a revision still being issued is rendered and stored."""
     done = services.revision_issue_complete(revision_id=revision_id)

@@ -92,7 +92,7 @@ _POSTGRES_DROP = [
 def _run(statements_by_vendor):  # type: ignore[no-untyped-def]
     def apply(apps, schema_editor):  # type: ignore[no-untyped-def]
         for sql in statements_by_vendor.get(schema_editor.connection.vendor, []):
-            schema_editor.execute(sql)
+            schema_editor.execute(sql, None)
 
     return apply
 

@@ -202,15 +202,6 @@ class ReportRevision(models.Model):
     def __str__(self) -> str:
         return self.label
 
-    @property
-    def label(self) -> str:
-        """The identifier printed on every page: report number and revision."""
-        return f"{self.report.number} rev {self.number}"
-
-    @property
-    def is_current(self) -> bool:
-        return self.state == RevisionState.ISSUED
-
     def save(self, *args: Any, **kwargs: Any) -> None:
         """Refuse any change to an issued revision's content, files or sign-offs.
 
@@ -237,6 +228,15 @@ class ReportRevision(models.Model):
                         )
         super().save(*args, **kwargs)
 
+
+    @property
+    def label(self) -> str:
+        """The identifier printed on every page: report number and revision."""
+        return f"{self.report.number} rev {self.number}"
+
+    @property
+    def is_current(self) -> bool:
+        return self.state == RevisionState.ISSUED
 
 class RevisionChange(models.Model):
     """One changed item in an amendment: what it was, what it is now, and why."""

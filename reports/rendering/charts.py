@@ -59,6 +59,7 @@ class Chart:
     x_from_zero: bool = True
     y_from_zero: bool = False
     invert_y: bool = False
+    x_max: float | None = None
     notes: tuple[str, ...] = field(default_factory=tuple)
 
 
@@ -112,6 +113,8 @@ def to_svg(chart: Chart, *, width_in: float = 6.3, height_in: float = 3.2) -> st
     ax.grid(True, linewidth=0.4, color="#cccccc")
     if chart.x_from_zero:
         ax.set_xlim(left=0)
+    if chart.x_max is not None:
+        ax.set_xlim(right=chart.x_max)
     if chart.y_from_zero:
         ax.set_ylim(bottom=0)
     if chart.equal_axes:
@@ -249,7 +252,7 @@ def vertical_curves_chart(test: dict[str, Any]) -> Chart:
 def consolidation_chart(test: dict[str, Any]) -> Chart:
     """Settlement against root time, with each stage's Taylor construction line."""
     series: list[Series] = []
-    notes: list[str] = []
+    x_max = 0.0
     for i, s in enumerate(test["stages"]):
         cons = s["consolidation"]
         if not cons["time_min"]:
@@ -289,16 +292,14 @@ def consolidation_chart(test: dict[str, Any]) -> Chart:
                     color_index=i,
                 )
             )
-            notes.append(
-                f"Stage {s['stage_number']}: t50 {taylor['t50_min']:.2f} min, t90 {taylor['t90_min']:.2f} min (root-time)"
-            )
+            x_max = max(x_max, 4.0 * math.sqrt(taylor["t90_min"]))
     return Chart(
         title=f"{test['reference']}: consolidation (root-time construction)",
         x_label="√(time) [√min]",
         y_label="Settlement [mm]",
         series=tuple(series),
         invert_y=True,
-        notes=tuple(notes[:3]),
+        x_max=x_max or None,
     )
 
 

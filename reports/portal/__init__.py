@@ -1,0 +1,1 @@
+"""The client portal: read-only views of an organisation's issued revisions."""

@@ -14,3 +14,8 @@ urlpatterns = [
     path("api/", include("labsite.api_urls")),
     path("", include("testing.urls")),
 ]
+
+# Error pages in the site's own layout.
+handler403 = "testing.views.errors.permission_denied"
+handler404 = "testing.views.errors.page_not_found"
+handler500 = "testing.views.errors.server_error"

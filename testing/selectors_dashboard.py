@@ -1,0 +1,504 @@
+"""Reads for the lab's overview pages: the worklist by state and the manager's throughput figures.
+
+Every figure is an aggregate the database computes (counts, truncation to weeks and months,
+percentiles on PostgreSQL), so the dashboard costs a handful of queries whatever the number of
+samples. SQLite has no percentile aggregate; there the turnaround days of the last twelve months
+are fetched as one column and the percentiles taken in Python with the same (linear) definition
+as PostgreSQL's ``percentile_cont``.
+
+The worklist's sign-off columns read the reports app's revision states through the ORM's reverse
+relation (``DirectShearTest.reports``) when that app is installed; ``testing`` never imports it.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+from datetime import date, datetime, time, timedelta
+from typing import Any
+
+from django.db import connection
+from django.db.models import (
+    Aggregate,
+    Count,
+    DateField,
+    Exists,
+    F,
+    FloatField,
+    Func,
+    IntegerField,
+    Max,
+    Min,
+    OuterRef,
+    Q,
+    QuerySet,
+)
+from django.db.models.functions import TruncDate, TruncMonth, TruncWeek
+from django.utils import timezone
+
+from testing import access
+from testing.access import AnyUser
+from testing.models import (
+    DirectShearTest,
+    Sample,
+    SampleEvent,
+    SampleStatus,
+    StageResult,
+)
+from testing.models.samples import OPEN_STATUSES
+
+WORKLIST_LIMIT = 50
+_OPEN = sorted(OPEN_STATUSES)
+
+# --- Database helpers ------------------------------------------------------------------------------
+
+
+class PercentileCont(Aggregate):
+    """PostgreSQL ``percentile_cont(fraction) WITHIN GROUP (ORDER BY expression)``."""
+
+    function = "percentile_cont"
+    template = "%(function)s(%(fraction)s) WITHIN GROUP (ORDER BY %(expressions)s)"
+    output_field = FloatField()
+
+    def __init__(self, expression: Any, fraction: float, **extra: Any) -> None:
+        if not 0.0 <= fraction <= 1.0:
+            raise ValueError("A percentile fraction lies between 0 and 1.")
+        super().__init__(expression, fraction=f"{float(fraction)!r}", **extra)
+
+
+class DaysBetween(Func):
+    """Whole days from ``start`` to ``end`` (both dates): PostgreSQL ``end - start``."""
+
+    output_field = IntegerField()
+    arg_joiner = " - "
+    template = "(%(expressions)s)"
+
+    def __init__(self, end: Any, start: Any) -> None:
+        super().__init__(end, start)
+
+    def as_sqlite(self, compiler: Any, conn: Any, **extra: Any) -> Any:  # type: ignore[override]
+        return self.as_sql(
+            compiler,
+            conn,
+            template="CAST(julianday(%(expressions)s) AS INTEGER)",
+            arg_joiner=") - julianday(",
+            **extra,
+        )
+
+
+def percentile_linear(sorted_values: Sequence[float], fraction: float) -> float:
+    """The ``percentile_cont`` definition: linear interpolation between closest ranks."""
+    if not sorted_values:
+        raise ValueError("No values.")
+    position = fraction * (len(sorted_values) - 1)
+    low = int(position)
+    high = min(low + 1, len(sorted_values) - 1)
+    return float(sorted_values[low] + (sorted_values[high] - sorted_values[low]) * (position - low))
+
+
+def _start_of_day(day: date) -> datetime:
+    return timezone.make_aware(datetime.combine(day, time.min))
+
+
+def _monday(day: date) -> date:
+    return day - timedelta(days=day.weekday())
+
+
+def _month_start(day: date, months_back: int) -> date:
+    index = day.year * 12 + (day.month - 1) - months_back
+    return date(index // 12, index % 12 + 1, 1)
+
+
+def _as_date(value: date | datetime | None) -> date | None:
+    if value is None:
+        return None
+    if isinstance(value, datetime):
+        return timezone.localtime(value).date() if timezone.is_aware(value) else value.date()
+    return value
+
+
+def _staff_events(user: AnyUser) -> QuerySet[SampleEvent]:
+    """Lifecycle events are the lab's internal record: staff see them all, anyone else none."""
+    if access.is_lab_staff(user):
+        return SampleEvent.objects.all()
+    return SampleEvent.objects.none()
+
+
+def _staff_samples(user: AnyUser) -> QuerySet[Sample]:
+    if access.is_lab_staff(user):
+        return Sample.objects.all()
+    return Sample.objects.none()
+
+
+# --- Dashboard ---------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class WeekRow:
+    week_start: date
+    received: int
+    reported: int
+
+
+@dataclass(frozen=True)
+class BacklogRow:
+    status: str
+    label: str
+    count: int
+
+
+@dataclass(frozen=True)
+class TurnaroundRow:
+    month: date
+    n: int
+    median_days: float
+    p90_days: float
+
+
+@dataclass(frozen=True)
+class ProjectOverdueRow:
+    project_id: int
+    reference: str
+    name: str
+    organisation: str
+    open: int
+    overdue: int
+    oldest_due_on: date | None
+
+
+@dataclass(frozen=True)
+class OverdueSample:
+    sample_id: int
+    label: str
+    status_label: str
+    due_on: date
+    days_overdue: int
+
+
+@dataclass(frozen=True)
+class TechnicianRow:
+    user_id: int
+    name: str
+    received: int
+    scheduled: int
+    started: int
+    tested: int
+    reported: int
+
+    @property
+    def total(self) -> int:
+        return self.received + self.scheduled + self.started + self.tested + self.reported
+
+
+@dataclass(frozen=True)
+class Dashboard:
+    today: date
+    weeks: list[WeekRow]
+    backlog: list[BacklogRow]
+    turnaround: list[TurnaroundRow]
+    overdue_total: int
+    overdue_by_project: list[ProjectOverdueRow]
+    overdue_samples: list[OverdueSample]
+    technicians: list[TechnicianRow]
+    technician_weeks: int
+
+
+def weekly_throughput(*, user: AnyUser, today: date, weeks: int = 12) -> list[WeekRow]:
+    """Samples received and reported per week (Monday start), oldest first, ``weeks`` weeks to today.
+
+    Two queries: received dates come from the sample; "reported" is the lifecycle event.
+    """
+    first = _monday(today) - timedelta(weeks=weeks - 1)
+    received = dict(
+        _staff_samples(user)
+        .filter(received_on__gte=first, received_on__lte=today)
+        .annotate(week=TruncWeek("received_on", output_field=DateField()))
+        .values_list("week")
+        .annotate(n=Count("pk"))
+        .values_list("week", "n")
+    )
+    reported = dict(
+        _staff_events(user)
+        .filter(to_status=SampleStatus.REPORTED, at__gte=_start_of_day(first))
+        .annotate(week=TruncWeek("at", output_field=DateField()))
+        .values_list("week")
+        .annotate(n=Count("pk"))
+        .values_list("week", "n")
+    )
+    received = {_as_date(k): v for k, v in received.items()}
+    reported = {_as_date(k): v for k, v in reported.items()}
+    rows = []
+    for i in range(weeks):
+        start = first + timedelta(weeks=i)
+        rows.append(WeekRow(start, received.get(start, 0), reported.get(start, 0)))
+    return rows
+
+
+def backlog_by_state(*, user: AnyUser) -> list[BacklogRow]:
+    """Open samples per lifecycle state, in lifecycle order (one query)."""
+    counts = dict(
+        _staff_samples(user)
+        .filter(status__in=_OPEN)
+        .values_list("status")
+        .annotate(n=Count("pk"))
+        .values_list("status", "n")
+    )
+    return [
+        BacklogRow(status.value, status.label, counts.get(status.value, 0))
+        for status in SampleStatus
+        if status in OPEN_STATUSES
+    ]
+
+
+def turnaround_by_month(*, user: AnyUser, today: date, months: int = 12) -> list[TurnaroundRow]:
+    """Turnaround (calendar days from receipt to the "reported" event) per month of reporting:
+    count, median and 90th percentile. Months with no report are left out."""
+    first = _month_start(today, months - 1)
+    reported = (
+        _staff_events(user)
+        .filter(to_status=SampleStatus.REPORTED, at__gte=_start_of_day(first))
+        .annotate(
+            month=TruncMonth("at", output_field=DateField()),
+            days=DaysBetween(TruncDate("at"), F("sample__received_on")),
+        )
+    )
+    if connection.vendor == "postgresql":
+        rows = (
+            reported.values_list("month")
+            .annotate(
+                n=Count("pk"),
+                median=PercentileCont("days", 0.5),
+                p90=PercentileCont("days", 0.9),
+            )
+            .values_list("month", "n", "median", "p90")
+            .order_by("month")
+        )
+        return [
+            TurnaroundRow(_as_date(month) or first, n, float(median), float(p90))
+            for month, n, median, p90 in rows
+        ]
+    by_month: dict[date, list[float]] = {}
+    for month, days in reported.values_list("month", "days").order_by("month", "days"):
+        key = _as_date(month)
+        assert key is not None
+        by_month.setdefault(key, []).append(float(days))
+    return [
+        TurnaroundRow(
+            month, len(values), percentile_linear(values, 0.5), percentile_linear(values, 0.9)
+        )
+        for month, values in sorted(by_month.items())
+    ]
+
+
+def overdue_by_project(*, user: AnyUser, today: date) -> list[ProjectOverdueRow]:
+    """Per project with open samples: how many are open, how many are past their due date."""
+    overdue = Q(status__in=_OPEN, due_on__lt=today)
+    rows = (
+        _staff_samples(user)
+        .filter(status__in=_OPEN)
+        .values(
+            "borehole__project_id",
+            "borehole__project__reference",
+            "borehole__project__name",
+            "borehole__project__organisation__name",
+        )
+        .annotate(
+            open=Count("pk"),
+            overdue=Count("pk", filter=overdue),
+            oldest_due_on=Min("due_on", filter=overdue),
+        )
+        .order_by("-overdue", "borehole__project__reference")
+    )
+    return [
+        ProjectOverdueRow(
+            project_id=r["borehole__project_id"],
+            reference=r["borehole__project__reference"],
+            name=r["borehole__project__name"],
+            organisation=r["borehole__project__organisation__name"],
+            open=r["open"],
+            overdue=r["overdue"],
+            oldest_due_on=r["oldest_due_on"],
+        )
+        for r in rows
+    ]
+
+
+def overdue_samples(*, user: AnyUser, today: date, limit: int = 20) -> list[OverdueSample]:
+    """The open samples furthest past their due date (oldest due first)."""
+    rows = (
+        _staff_samples(user)
+        .filter(status__in=_OPEN, due_on__lt=today)
+        .order_by("due_on", "pk")
+        .values_list(
+            "pk",
+            "borehole__project__reference",
+            "borehole__reference",
+            "reference",
+            "status",
+            "due_on",
+        )[:limit]
+    )
+    return [
+        OverdueSample(
+            sample_id=pk,
+            label=f"{project}/{borehole}/{reference}",
+            status_label=SampleStatus(status).label,
+            due_on=due_on,
+            days_overdue=(today - due_on).days,
+        )
+        for pk, project, borehole, reference, status, due_on in rows
+        if due_on is not None
+    ]
+
+
+def work_per_technician(*, user: AnyUser, today: date, weeks: int = 12) -> list[TechnicianRow]:
+    """Lifecycle moves made by each person over the last ``weeks`` weeks (one grouped query)."""
+    since = _start_of_day(today - timedelta(weeks=weeks))
+
+    def moves(status: SampleStatus) -> Count:
+        return Count("pk", filter=Q(to_status=status))
+
+    rows = (
+        _staff_events(user)
+        .filter(at__gte=since)
+        .values("by_id", "by__username", "by__first_name", "by__last_name")
+        .annotate(
+            received=moves(SampleStatus.RECEIVED),
+            scheduled=moves(SampleStatus.SCHEDULED),
+            started=moves(SampleStatus.IN_TEST),
+            tested=moves(SampleStatus.TESTED),
+            reported=moves(SampleStatus.REPORTED),
+        )
+        .order_by("by__username")
+    )
+    result = [
+        TechnicianRow(
+            user_id=r["by_id"],
+            name=f"{r['by__first_name']} {r['by__last_name']}".strip() or r["by__username"],
+            received=r["received"],
+            scheduled=r["scheduled"],
+            started=r["started"],
+            tested=r["tested"],
+            reported=r["reported"],
+        )
+        for r in rows
+    ]
+    return sorted((row for row in result if row.total), key=lambda row: (-row.total, row.name))
+
+
+def dashboard_for_user(*, user: AnyUser, today: date | None = None) -> Dashboard:
+    """Every figure on the manager's dashboard (seven queries whatever the data volume)."""
+    today = today or timezone.localdate()
+    by_project = overdue_by_project(user=user, today=today)
+    return Dashboard(
+        today=today,
+        weeks=weekly_throughput(user=user, today=today),
+        backlog=backlog_by_state(user=user),
+        turnaround=turnaround_by_month(user=user, today=today),
+        overdue_total=sum(row.overdue for row in by_project),
+        overdue_by_project=by_project,
+        overdue_samples=overdue_samples(user=user, today=today),
+        technicians=work_per_technician(user=user, today=today),
+        technician_weeks=12,
+    )
+
+
+# --- Worklist ----------------------------------------------------------------------------------------
+
+
+def _reports_installed() -> bool:
+    return any(f.name == "reports" for f in DirectShearTest._meta.get_fields())
+
+
+@dataclass(frozen=True)
+class WorklistColumn:
+    key: str
+    title: str
+    hint: str
+    total: int
+    samples: list[Sample]
+    tests: list[DirectShearTest]
+
+
+def worklist_for_user(*, user: AnyUser, today: date | None = None) -> list[WorklistColumn]:
+    """The lab's work by state: samples waiting, scheduled and in test; test sets awaiting check,
+    approval and issue. Staff only (anyone else gets empty columns). At most
+    :data:`WORKLIST_LIMIT` items per column; ``total`` gives the full count.
+
+    Queries: one count per sample state group, one list per sample column, one per test column.
+    """
+    today = today or timezone.localdate()
+    samples = _staff_samples(user).select_related("borehole__project__organisation")
+    columns: list[WorklistColumn] = []
+    for status, title, hint in (
+        (SampleStatus.RECEIVED, "Received", "Logged in; waiting to be scheduled."),
+        (SampleStatus.SCHEDULED, "Scheduled", "Planned for testing."),
+        (SampleStatus.IN_TEST, "In test", "Specimens in the box."),
+    ):
+        rows = list(samples.filter(status=status).order_by("due_on", "pk")[: WORKLIST_LIMIT + 1])
+        total = len(rows)
+        if total > WORKLIST_LIMIT:
+            total = samples.filter(status=status).count()
+        columns.append(WorklistColumn(status.value, title, hint, total, rows[:WORKLIST_LIMIT], []))
+
+    tests = (
+        DirectShearTest.objects.filter(access.test_filter(user))
+        .select_related("project__organisation")
+        .annotate(stage_count=Count("stages", distinct=True))
+        .order_by("due_on", "pk")
+    )
+    if not access.is_lab_staff(user):
+        tests = tests.none()
+    has_results = Exists(StageResult.objects.filter(stage__test=OuterRef("pk")))
+    unreleased = tests.filter(released_at__isnull=True).filter(has_results)
+    test_columns: list[tuple[str, str, str, QuerySet[DirectShearTest]]]
+    if _reports_installed():
+        # A test set under a report revision in flight; the revision id links to its page.
+        def at_state(*states: str) -> QuerySet[DirectShearTest]:
+            in_state = Q(reports__revisions__state__in=states)
+            return tests.filter(in_state).annotate(
+                revision_id=Max("reports__revisions__id", filter=in_state)
+            )
+
+        test_columns = [
+            (
+                "awaiting_check",
+                "Awaiting check",
+                "Results computed; no report checked yet.",
+                unreleased.exclude(
+                    reports__revisions__state__in=["checked", "approved", "issuing", "issued"]
+                ).annotate(
+                    revision_id=Max(
+                        "reports__revisions__id", filter=Q(reports__revisions__state="draft")
+                    )
+                ),
+            ),
+            (
+                "awaiting_approval",
+                "Awaiting approval",
+                "Report checked; waiting for the approving engineer.",
+                at_state("checked"),
+            ),
+            (
+                "ready_to_issue",
+                "Ready to issue",
+                "Report approved; ready to be signed and issued.",
+                at_state("approved", "issuing"),
+            ),
+        ]
+    else:
+        test_columns = [
+            (
+                "awaiting_check",
+                "Awaiting check",
+                "Results computed; not yet reported.",
+                unreleased,
+            ),
+        ]
+    for key, title, hint, queryset in test_columns:
+        rows_t = list(queryset[: WORKLIST_LIMIT + 1])
+        total = len(rows_t)
+        if total > WORKLIST_LIMIT:
+            total = queryset.count()
+        columns.append(WorklistColumn(key, title, hint, total, [], rows_t[:WORKLIST_LIMIT]))
+    return columns

@@ -1,0 +1,41 @@
+"""Template helpers for the staff pages."""
+
+from __future__ import annotations
+
+from django import template
+from django.urls import reverse
+
+from testing import access, analysis
+from testing.access import AnyUser
+from testing.views.assets import plotly_version
+from testing.views.common import optional_url
+
+register = template.Library()
+
+
+@register.simple_tag
+def plotly_src() -> str:
+    """The versioned URL of the Plotly bundle from the installed package."""
+    return reverse("plotly-js", args=[plotly_version()])
+
+
+@register.simple_tag
+def maybe_url(name: str, *args: object) -> str:
+    """A URL by name, or "" when the page does not exist (an optional app's page)."""
+    return optional_url(name, *args) or ""
+
+
+@register.filter
+def is_lab_staff(user: AnyUser) -> bool:
+    return access.is_lab_staff(user)
+
+
+@register.filter
+def is_manager(user: AnyUser) -> bool:
+    return access.can_manage(user)
+
+
+@register.filter
+def criterion_label(code: str) -> str:
+    """The failure criterion in words (as stored, AGS SHBT_CRIT style codes)."""
+    return analysis.CRITERION_LABELS.get(code, code)

@@ -573,3 +573,74 @@ def manual_rows_reduce(stage: ShearStage, rows: Sequence[Mapping[str, object]]) 
             continue
         out.append(ReducedRow(number, force, 1000.0 * force / box.plan_area_mm2))
     return out
+
+
+# --- AGS4 import --------------------------------------------------------------------------------
+
+
+def ags_import_preview(*, user: User, project: Any, data: bytes) -> Any:
+    """The validation report of an AGS4 file against ``project``; saves nothing."""
+    from testing.importers.ags import plan_ags_import
+
+    if not access.can_receive_samples(user):
+        raise NotAllowed("Only technicians and the lab manager can import AGS4 files.")
+    if len(data) > max_upload_bytes():
+        raise UploadTooLarge(f"The file is over the limit of {max_upload_bytes()} bytes.")
+    return plan_ags_import(data, project=project, own_lab_name=settings.TAULINE_LAB_NAME)
+
+
+def ags_import_apply(*, user: User, project: Any, data: bytes, filename: str) -> Any:
+    """Import an AGS4 file's locations, samples and other labs' shear box results into
+    ``project`` in one transaction — only if its report has no errors (else ``ServiceError``
+    carrying the report). Returns the plan that was carried out."""
+    from decimal import Decimal
+
+    from testing.models import Borehole, ImportedShearTest, Sample
+    from testing.services.records import sample_receive
+
+    plan = ags_import_preview(user=user, project=project, data=data)
+    if not plan.ok:
+        raise ServiceError("The AGS4 file was not imported:\n" + plan.report())
+    digest = hashlib.sha256(data).hexdigest()
+    with transaction.atomic():
+        for fields in plan.new_boreholes:
+            Borehole.objects.create(project=project, **fields)
+        boreholes = {b.reference: b for b in Borehole.objects.filter(project=project)}
+        samples: dict[tuple[str, str], Sample] = {}
+        for s in plan.samples:
+            bh = boreholes[s.loca_id]
+            found = Sample.objects.filter(borehole=bh, reference=s.reference).first()
+            if found is None:
+                found = sample_receive(
+                    user=user,
+                    borehole=bh,
+                    reference=s.reference,
+                    depth_top_m=Decimal(s.depth_top_m),
+                    depth_base_m=Decimal(s.depth_base_m),
+                    sample_type=s.sample_type,
+                    description=s.description,
+                    condition_on_receipt=f"Record imported from AGS4 file {display_name(filename)}",
+                )
+            samples[(s.loca_id, s.reference)] = found
+        for t in plan.shear_tests:
+            ImportedShearTest.objects.update_or_create(
+                sample=samples[t.sample_key],
+                specimen_reference=t.specimen_reference,
+                specimen_depth_m=t.specimen_depth_m,
+                source_lab=t.source_lab,
+                defaults={
+                    "source_file_name": display_name(filename),
+                    "source_sha256": digest,
+                    "method": t.method,
+                    "test_type": t.test_type,
+                    "condition": t.condition,
+                    "peak_cohesion_kpa": t.peak_cohesion_kpa,
+                    "peak_friction_angle_deg": t.peak_friction_angle_deg,
+                    "residual_cohesion_kpa": t.residual_cohesion_kpa,
+                    "residual_friction_angle_deg": t.residual_friction_angle_deg,
+                    "remarks": t.remarks,
+                    "stages": t.stages,
+                    "imported_by": user,
+                },
+            )
+    return plan

@@ -1,4 +1,8 @@
-"""Liveness and readiness: the database must answer; the broker is reported, not required."""
+"""Liveness and readiness: the database must answer; the broker and workers are reported.
+
+``ok``: everything answers. ``degraded`` (still 200): the broker is down or no worker has sent a
+heartbeat lately — pages work, background work waits in the outbox. ``down`` (503): no database.
+"""
 
 from __future__ import annotations
 
@@ -6,6 +10,22 @@ from django.conf import settings
 from django.db import connection
 from django.http import HttpRequest, JsonResponse
 from django.views.decorators.http import require_GET
+
+
+def _broker_and_workers() -> tuple[str, str]:
+    if not settings.REDIS_URL:
+        return "in-process", "in-process"
+    import redis
+
+    from labsite.celery import HEARTBEAT_KEY_PREFIX
+
+    client = redis.Redis.from_url(settings.REDIS_URL, socket_timeout=1, socket_connect_timeout=1)
+    try:
+        client.ping()
+        alive = next(iter(client.scan_iter(match=f"{HEARTBEAT_KEY_PREFIX}*", count=100)), None)
+    except redis.RedisError:
+        return "down", "unknown"
+    return "ok", "ok" if alive is not None else "none"
 
 
 @require_GET
@@ -17,21 +37,10 @@ def healthz(request: HttpRequest) -> JsonResponse:
         checks["database"] = "ok"
     except Exception:  # any failure means not ready; the detail goes to the log, not the client
         checks["database"] = "down"
-    if settings.REDIS_URL:
-        import redis
-
-        try:
-            redis.Redis.from_url(
-                settings.REDIS_URL, socket_timeout=1, socket_connect_timeout=1
-            ).ping()
-            checks["broker"] = "ok"
-        except redis.RedisError:
-            checks["broker"] = "down"
-    else:
-        checks["broker"] = "in-process"
+    checks["broker"], checks["workers"] = _broker_and_workers()
     if checks["database"] != "ok":
         status, code = "down", 503
-    elif checks["broker"] == "down":
+    elif checks["broker"] == "down" or checks["workers"] not in ("ok", "in-process"):
         status, code = "degraded", 200
     else:
         status, code = "ok", 200

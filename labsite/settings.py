@@ -13,6 +13,7 @@ import dj_database_url
 import django_stubs_ext
 from csp.constants import NONCE, NONE, SELF
 from django.core.exceptions import ImproperlyConfigured
+from kombu import Queue
 
 from labsite.env import env_bool, env_int, env_list, env_str
 
@@ -130,7 +131,10 @@ CELERY_BROKER_CONNECTION_TIMEOUT = 1.0
 CELERY_BROKER_CONNECTION_RETRY_ON_STARTUP = True
 # A web request publishes once and gives up fast when the broker is down; the outbox keeps the job.
 CELERY_TASK_PUBLISH_RETRY = False
-CELERY_TASK_DEFAULT_QUEUE = "computation"
+# Three queues; a plain `celery worker` consumes all of them, or dedicate workers with -Q computation
+# (reductions and fits) and -Q reports (PDF rendering and signing).
+CELERY_TASK_DEFAULT_QUEUE = "celery"
+CELERY_TASK_QUEUES = [Queue("celery"), Queue("computation"), Queue("reports")]
 CELERY_TASK_ROUTES = {
     "tauline.run_computation": {"queue": "computation"},
     "tauline.relay_outbox": {"queue": "computation"},

@@ -1,0 +1,32 @@
+"""/healthz: ok in-process; degraded (still 200, answered fast) when the broker is unreachable."""
+
+from __future__ import annotations
+
+import time
+from typing import Any
+
+import pytest
+from django.test import Client
+
+from tests.support.processes import free_port
+
+
+@pytest.mark.django_db
+def test_in_process_install_is_ok() -> None:
+    response = Client().get("/healthz")
+    assert response.status_code == 200
+    assert response.json() == {
+        "status": "ok",
+        "checks": {"database": "ok", "broker": "in-process", "workers": "in-process"},
+    }
+
+
+@pytest.mark.django_db
+def test_unreachable_broker_is_degraded_and_answers_within_two_seconds(settings: Any) -> None:
+    settings.REDIS_URL = f"redis://127.0.0.1:{free_port()}/0"  # nothing listens there
+    started = time.monotonic()
+    response = Client().get("/healthz")
+    assert time.monotonic() - started < 2.0
+    assert response.status_code == 200
+    assert response.json()["status"] == "degraded"
+    assert response.json()["checks"]["broker"] == "down"

@@ -297,8 +297,9 @@ def run_execute(*, run_id: int) -> str:
 
     token = uuid.uuid4().hex
     now = timezone.now()
+    claimable = Q(state=RunState.QUEUED) | Q(state=RunState.RUNNING, lease_expires_at__lt=now)
     claimed = ComputationRun.objects.filter(
-        Q(state=RunState.QUEUED) | Q(state=RunState.RUNNING, lease_expires_at__lt=now), pk=run_id
+        claimable, pk=run_id, attempts__lt=MAX_DELIVERIES
     ).update(
         state=RunState.RUNNING,
         attempts=F("attempts") + 1,
@@ -309,14 +310,23 @@ def run_execute(*, run_id: int) -> str:
         analysis_version=analysis.ANALYSIS_VERSION,
     )
     if not claimed:
+        # Out of deliveries: the previous ones all died mid-run. Record why, once.
+        gave_up = ComputationRun.objects.filter(
+            claimable, pk=run_id, attempts__gte=MAX_DELIVERIES
+        ).update(
+            state=RunState.FAILED,
+            finished_at=now,
+            claim_token="",
+            error=f"The worker stopped {MAX_DELIVERIES} times while running this; it will not be tried again. "
+            "Check the worker logs, then ask for the computation again.",
+        )
+        if gave_up:
+            return "failed"
         state = ComputationRun.objects.filter(pk=run_id).values_list("state", flat=True).first()
         return "busy" if state == RunState.RUNNING else "skipped"
     run = ComputationRun.objects.select_related("stage__test", "stage__specimen", "test").get(
         pk=run_id
     )
-    if run.attempts > MAX_DELIVERIES:
-        _finish_failed(run, token, f"Gave up after {MAX_DELIVERIES} deliveries.")
-        return "failed"
     try:
         if run.kind == RunKind.STAGE_REDUCTION:
             _execute_stage(run, token)

@@ -327,3 +327,16 @@ def test_bs_profile_computes_the_permitted_rate_from_t100(demo: dict[str, Any]) 
     assert result.max_rate_mm_per_min == pytest.approx(limit["max_rate_mm_per_min"])
     too_fast = any(f["code"] == "RATE_TOO_FAST" for f in result.flags)
     assert too_fast == (result.measured_rate_mm_per_min > result.max_rate_mm_per_min)
+
+
+def test_a_fourth_delivery_does_not_run_and_records_why(demo: dict[str, Any]) -> None:
+    stage = demo["sand"].stages.first()
+    with mock.patch.object(computation, "outbox_publish"):
+        run = computation.stage_reduction_request(stage=stage, user=demo["technician"], reason="a")
+    past = timezone.now() - timedelta(seconds=1)
+    ComputationRun.objects.filter(pk=run.pk).update(state=RunState.RUNNING, attempts=3, lease_expires_at=past)
+    assert computation.run_execute(run_id=run.pk) == "failed"
+    run.refresh_from_db()
+    assert (run.state, run.attempts) == (RunState.FAILED, 3)
+    assert "stopped 3 times" in run.error
+    assert not StageResult.objects.filter(run=run).exists()

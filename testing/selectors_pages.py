@@ -101,7 +101,9 @@ def shear_test_page(*, user: AnyUser, test: DirectShearTest, run_limit: int = 12
     envelope of each type; the most recent runs. Five queries whatever the number of stages."""
     stages = list(
         test.stages.select_related("specimen__sample__borehole")
-        .prefetch_related(Prefetch("exclusions", queryset=StageExclusion.objects.all()))
+        .prefetch_related(
+            Prefetch("exclusions", queryset=StageExclusion.objects.select_related("excluded_by"))
+        )
         .order_by("stage_number")
     )
     results = selectors.latest_stage_results(test=test)

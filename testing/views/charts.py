@@ -18,7 +18,6 @@ from scipy import stats
 
 from testing import analysis
 from testing.models import EnvelopeResult, ShearStage
-from testing.selectors_dashboard import Dashboard, TurnaroundRow, WeekRow
 from testing.services.direct_shear import stage_reduction_compute
 from testing.services.stage_inputs import stage_inputs_load
 
@@ -30,7 +29,7 @@ FONT = {"family": "system-ui, 'DejaVu Sans', sans-serif", "size": 13, "color": "
 Figure = dict[str, Any]
 
 
-def _layout(x_title: str, y_title: str, **extra: Any) -> dict[str, Any]:
+def layout_for(x_title: str, y_title: str, **extra: Any) -> dict[str, Any]:
     layout: dict[str, Any] = {
         "font": FONT,
         "margin": {"l": 64, "r": 16, "t": 24, "b": 56},
@@ -171,7 +170,7 @@ def shear_stress_figure(curves: Sequence[StageCurves]) -> Figure:
         )
     return {
         "data": data,
-        "layout": _layout("Horizontal displacement x (mm)", "Shear stress τ (kPa)"),
+        "layout": layout_for("Horizontal displacement x (mm)", "Shear stress τ (kPa)"),
     }
 
 
@@ -192,7 +191,7 @@ def vertical_figure(curves: Sequence[StageCurves]) -> Figure:
     ]
     return {
         "data": data,
-        "layout": _layout(
+        "layout": layout_for(
             "Horizontal displacement x (mm)", "Vertical displacement y (mm, dilation +)"
         ),
     }
@@ -260,7 +259,7 @@ def consolidation_figure(c: StageCurves, colour_index: int = 0) -> Figure:
                 "hovertemplate": "%{text}<br>settlement %{y:.3f} mm<extra></extra>",
             }
         )
-    layout = _layout(
+    layout = layout_for(
         "Square root of time √t (√min)",
         "Settlement (mm, compression +)",
         shapes=shapes,
@@ -368,7 +367,7 @@ def envelope_figure(envelope: EnvelopeResult) -> Figure:
                 "hovertemplate": "%{text}<br>σn %{x:.1f} kPa<br>τ %{y:.1f} kPa<extra></extra>",
             }
         )
-    layout = _layout("Normal stress σn (kPa)", "Shear stress τ (kPa)")
+    layout = layout_for("Normal stress σn (kPa)", "Shear stress τ (kPa)")
     layout["xaxis"]["rangemode"] = "tozero"
     layout["yaxis"]["rangemode"] = "tozero"
     layout["annotations"] = [
@@ -390,109 +389,3 @@ def envelope_figure(envelope: EnvelopeResult) -> Figure:
         }
     ]
     return {"data": data, "layout": layout}
-
-
-# --- Dashboard -----------------------------------------------------------------------------------
-
-
-def weekly_figure(weeks: Sequence[WeekRow]) -> Figure:
-    labels = [w.week_start.isoformat() for w in weeks]
-    return {
-        "data": [
-            {
-                "type": "bar",
-                "name": "Received",
-                "x": labels,
-                "y": [w.received for w in weeks],
-                "marker": {"color": PALETTE[0]},
-                "hovertemplate": "Week of %{x}<br>%{y} samples received<extra></extra>",
-            },
-            {
-                "type": "bar",
-                "name": "Reported",
-                "x": labels,
-                "y": [w.reported for w in weeks],
-                "marker": {"color": PALETTE[1]},
-                "hovertemplate": "Week of %{x}<br>%{y} samples reported<extra></extra>",
-            },
-        ],
-        "layout": _layout("Week starting (Monday)", "Samples (count)", barmode="group"),
-    }
-
-
-def backlog_figure(dashboard: Dashboard) -> Figure:
-    rows = dashboard.backlog
-    return {
-        "data": [
-            {
-                "type": "bar",
-                "orientation": "h",
-                "x": [r.count for r in rows],
-                "y": [r.label for r in rows],
-                "marker": {"color": PALETTE[2]},
-                "hovertemplate": "%{y}: %{x} samples<extra></extra>",
-                "showlegend": False,
-            }
-        ],
-        "layout": _layout(
-            "Open samples (count)",
-            "",
-            yaxis={"autorange": "reversed", "automargin": True},
-            height=300,
-        ),
-    }
-
-
-def turnaround_figure(rows: Sequence[TurnaroundRow]) -> Figure:
-    labels = [r.month.strftime("%Y-%m") for r in rows]
-    return {
-        "data": [
-            {
-                "type": "scatter",
-                "mode": "lines+markers",
-                "name": "Median",
-                "x": labels,
-                "y": [r.median_days for r in rows],
-                "line": {"color": PALETTE[0], "width": 2},
-                "hovertemplate": "%{x}: median %{y:.1f} days<extra></extra>",
-            },
-            {
-                "type": "scatter",
-                "mode": "lines+markers",
-                "name": "90th percentile",
-                "x": labels,
-                "y": [r.p90_days for r in rows],
-                "line": {"color": PALETTE[4], "width": 2, "dash": "dash"},
-                "hovertemplate": "%{x}: 90th percentile %{y:.1f} days<extra></extra>",
-            },
-        ],
-        "layout": _layout(
-            "Month reported", "Turnaround (days, receipt to report)", xaxis={"type": "category"}
-        ),
-    }
-
-
-def technician_figure(dashboard: Dashboard) -> Figure:
-    rows = dashboard.technicians
-    names = [r.name for r in rows]
-    series = [
-        ("Received", "received"),
-        ("Scheduled", "scheduled"),
-        ("Started testing", "started"),
-        ("Tested", "tested"),
-        ("Reported", "reported"),
-    ]
-    return {
-        "data": [
-            {
-                "type": "bar",
-                "name": label,
-                "x": names,
-                "y": [getattr(r, attr) for r in rows],
-                "marker": {"color": PALETTE[i % len(PALETTE)]},
-                "hovertemplate": f"%{{x}}: %{{y}} {label.lower()}<extra></extra>",
-            }
-            for i, (label, attr) in enumerate(series)
-        ],
-        "layout": _layout("Person", "Lifecycle moves (count)", barmode="stack"),
-    }

@@ -2,12 +2,120 @@
 
 from __future__ import annotations
 
+from collections.abc import Sequence
+
 from django.http import HttpRequest, HttpResponse
 from django.shortcuts import render
 
 from testing import selectors_dashboard
-from testing.views import charts
+from testing.selectors_dashboard import Dashboard, TurnaroundRow, WeekRow
+from testing.views.charts import PALETTE, Figure, layout_for
 from testing.views.common import manager_page
+
+# --- Figures (Plotly JSON; each chart has a table under it on the page) -------------------------
+
+
+def weekly_figure(weeks: Sequence[WeekRow]) -> Figure:
+    labels = [w.week_start.isoformat() for w in weeks]
+    return {
+        "data": [
+            {
+                "type": "bar",
+                "name": "Received",
+                "x": labels,
+                "y": [w.received for w in weeks],
+                "marker": {"color": PALETTE[0]},
+                "hovertemplate": "Week of %{x}<br>%{y} samples received<extra></extra>",
+            },
+            {
+                "type": "bar",
+                "name": "Reported",
+                "x": labels,
+                "y": [w.reported for w in weeks],
+                "marker": {"color": PALETTE[1]},
+                "hovertemplate": "Week of %{x}<br>%{y} samples reported<extra></extra>",
+            },
+        ],
+        "layout": layout_for("Week starting (Monday)", "Samples (count)", barmode="group"),
+    }
+
+
+def backlog_figure(dashboard: Dashboard) -> Figure:
+    rows = dashboard.backlog
+    return {
+        "data": [
+            {
+                "type": "bar",
+                "orientation": "h",
+                "x": [r.count for r in rows],
+                "y": [r.label for r in rows],
+                "marker": {"color": PALETTE[2]},
+                "hovertemplate": "%{y}: %{x} samples<extra></extra>",
+                "showlegend": False,
+            }
+        ],
+        "layout": layout_for(
+            "Open samples (count)",
+            "",
+            yaxis={"autorange": "reversed", "automargin": True},
+            height=300,
+        ),
+    }
+
+
+def turnaround_figure(rows: Sequence[TurnaroundRow]) -> Figure:
+    labels = [r.month.strftime("%Y-%m") for r in rows]
+    return {
+        "data": [
+            {
+                "type": "scatter",
+                "mode": "lines+markers",
+                "name": "Median",
+                "x": labels,
+                "y": [r.median_days for r in rows],
+                "line": {"color": PALETTE[0], "width": 2},
+                "hovertemplate": "%{x}: median %{y:.1f} days<extra></extra>",
+            },
+            {
+                "type": "scatter",
+                "mode": "lines+markers",
+                "name": "90th percentile",
+                "x": labels,
+                "y": [r.p90_days for r in rows],
+                "line": {"color": PALETTE[4], "width": 2, "dash": "dash"},
+                "hovertemplate": "%{x}: 90th percentile %{y:.1f} days<extra></extra>",
+            },
+        ],
+        "layout": layout_for(
+            "Month reported", "Turnaround (days, receipt to report)", xaxis={"type": "category"}
+        ),
+    }
+
+
+def technician_figure(dashboard: Dashboard) -> Figure:
+    rows = dashboard.technicians
+    names = [r.name for r in rows]
+    series = [
+        ("Received", "received"),
+        ("Scheduled", "scheduled"),
+        ("Started testing", "started"),
+        ("Tested", "tested"),
+        ("Reported", "reported"),
+    ]
+    return {
+        "data": [
+            {
+                "type": "bar",
+                "name": label,
+                "x": names,
+                "y": [getattr(r, attr) for r in rows],
+                "marker": {"color": PALETTE[i % len(PALETTE)]},
+                "hovertemplate": f"%{{x}}: %{{y}} {label.lower()}<extra></extra>",
+            }
+            for i, (label, attr) in enumerate(series)
+        ],
+        "layout": layout_for("Person", "Lifecycle moves (count)", barmode="stack"),
+    }
 
 
 @manager_page
@@ -15,10 +123,10 @@ def dashboard(request: HttpRequest) -> HttpResponse:
     figures = selectors_dashboard.dashboard_for_user(user=request.user)
     context = {
         "d": figures,
-        "weekly_chart": charts.weekly_figure(figures.weeks),
-        "backlog_chart": charts.backlog_figure(figures),
-        "turnaround_chart": charts.turnaround_figure(figures.turnaround),
-        "technician_chart": charts.technician_figure(figures),
+        "weekly_chart": weekly_figure(figures.weeks),
+        "backlog_chart": backlog_figure(figures),
+        "turnaround_chart": turnaround_figure(figures.turnaround),
+        "technician_chart": technician_figure(figures),
         "backlog_total": sum(row.count for row in figures.backlog),
         "weekly_totals": (
             sum(w.received for w in figures.weeks),

@@ -7,7 +7,7 @@ from django.http import HttpRequest, HttpResponse
 from django.shortcuts import redirect, render
 from django.utils import timezone
 
-from testing import access, selectors, selectors_dashboard
+from testing import access, selectors, selectors_worklist
 from testing.models import SampleStatus
 from testing.views.common import CAUTION, optional_url, staff_page
 
@@ -33,13 +33,13 @@ def home(request: HttpRequest) -> HttpResponse:
 
 @staff_page
 def worklist(request: HttpRequest) -> HttpResponse:
-    columns = selectors_dashboard.worklist_for_user(user=request.user)
+    columns = selectors_worklist.worklist_for_user(user=request.user)
     return render(
         request,
         "testing/worklist.html",
         {
             "columns": columns,
-            "limit": selectors_dashboard.WORKLIST_LIMIT,
+            "limit": selectors_worklist.WORKLIST_LIMIT,
             "today": timezone.localdate(),
         },
     )

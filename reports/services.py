@@ -31,7 +31,7 @@ from reports.rendering.context import (
     build_content,
     content_changes,
     content_sha256,
-    tests_for_report,
+    report_tests_load,
 )
 from testing import access
 from testing.models import DirectShearTest, Project
@@ -108,7 +108,7 @@ def report_create(
         raise ServiceError("Choose at least one test set for the report.")
     if any(t.project_id != project.pk for t in tests):
         raise ServiceError("Every test set in a report must belong to the report's project.")
-    loaded = tests_for_report([t.pk for t in tests])
+    loaded = report_tests_load([t.pk for t in tests])
     now = timezone.now()
     for attempt in range(5):
         try:
@@ -235,7 +235,7 @@ def revision_update(
         raise NotAllowed("Only technicians and the lab manager edit reports.")
     with transaction.atomic():
         locked = (
-            ReportRevision.objects.select_for_update()
+            ReportRevision.objects.select_for_update(of=("self",))
             .select_related("report", "replaces")
             .get(pk=revision.pk)
         )
@@ -251,7 +251,7 @@ def revision_update(
         if not changed and not refresh_results:
             return locked
         old_hash = locked.content_sha256
-        _freeze(locked, tests_for_report(locked.report.tests.values_list("pk", flat=True)))
+        _freeze(locked, report_tests_load(locked.report.tests.values_list("pk", flat=True)))
         locked.save()
         locked.stage_results.set(locked._frozen_stage_ids)  # type: ignore[attr-defined]
         locked.envelope_results.set(locked._frozen_envelope_ids)  # type: ignore[attr-defined]
@@ -544,7 +544,7 @@ def revision_supersede(*, user: User, revision: ReportRevision, reason: str) -> 
             user=user,
             report=current.report,
             number=(latest or current.number) + 1,
-            tests=tests_for_report(current.report.tests.values_list("pk", flat=True)),
+            tests=report_tests_load(current.report.tests.values_list("pk", flat=True)),
             title=current.title,
             remarks=current.remarks,
             deviations=current.deviations,

@@ -256,7 +256,7 @@ def _test_content(test: DirectShearTest) -> tuple[dict[str, Any], list[int], lis
     )
 
 
-def tests_for_report(test_ids: Iterable[int]) -> list[DirectShearTest]:
+def report_tests_load(test_ids: Iterable[int]) -> list[DirectShearTest]:
     """The test sets with everything the snapshot reads, in a fixed number of queries."""
     stages = ShearStage.objects.select_related("specimen__sample__borehole").order_by(
         "stage_number"
@@ -282,7 +282,7 @@ def build_content(
 ) -> tuple[dict[str, Any], list[int], list[int]]:
     """The frozen snapshot of a revision, and the ids of the stage and envelope results it used.
 
-    ``tests`` must come from :func:`tests_for_report` (related rows already loaded).
+    ``tests`` must come from :func:`report_tests_load` (related rows already loaded).
     """
     if not tests:
         raise ResultsNotReady("Choose at least one test set for the report.")

@@ -62,7 +62,7 @@ def build_test_set(
         project=project,
         reference=reference,
         method="bs-1377-7",
-        apparatus=f"SB-2 (60 mm){text}",
+        apparatus=f"SB-2 (60 mm){text}"[:80],
         box_length_mm=BOX_MM,
         box_width_mm=BOX_MM,
         requested_on=date(2026, 11, 3),

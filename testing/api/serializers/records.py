@@ -22,6 +22,8 @@ from testing.models import (
 
 
 class OrganisationOut(OutputSerializer):
+    contact_email = serializers.CharField(read_only=True, help_text="Blank when not recorded.")
+
     class Meta:
         model = Organisation
         fields = [
@@ -176,6 +178,9 @@ class SampleIn(InputSerializer):
 
 class SampleEventOut(OutputSerializer):
     by = serializers.SerializerMethodField()
+    from_status = serializers.CharField(
+        read_only=True, help_text="The state before the move; blank for the first event."
+    )
 
     class Meta:
         model = SampleEvent

@@ -10,6 +10,10 @@ from testing.models import ComputationRun, EnvelopeResult, EnvelopeType, SampleS
 
 
 class ComputationRunOut(OutputSerializer):
+    envelope_type = serializers.CharField(
+        read_only=True, help_text="peak, ultimate or residual for an envelope fit; blank otherwise."
+    )
+
     class Meta:
         model = ComputationRun
         fields = [
@@ -129,6 +133,10 @@ class EnvelopeResultOut(OutputSerializer):
 
 class RecomputeIn(serializers.Serializer):
     reason = serializers.CharField(max_length=200, help_text="Why the results are recomputed.")
+
+
+class RecomputeOut(serializers.Serializer):
+    runs = ComputationRunOut(many=True, read_only=True, help_text="The runs queued, one per stage.")
 
 
 class StageExclusionIn(serializers.Serializer):

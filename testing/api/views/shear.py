@@ -36,7 +36,7 @@ class TestSetViewSet(CreateViaServiceMixin, RecordViewSet):
     def perform_service(self, data: dict[str, Any]) -> Model:
         return shear_setup.shear_test_create(user=self.acting_user, **data)
 
-    @extend_schema(request=rs.RecomputeIn, responses={202: rs.ComputationRunOut(many=True)})
+    @extend_schema(request=rs.RecomputeIn, responses={202: rs.RecomputeOut})
     @action(detail=True, methods=["post"])
     def recompute(self, request: Request, pk: str | None = None) -> Response:
         """Queue every stage of the set again (envelopes follow). Issued results never change:

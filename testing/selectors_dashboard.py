@@ -175,10 +175,14 @@ class TechnicianRow:
     started: int
     tested: int
     reported: int
+    other: int
+    """Holds, disposals and moves back to an earlier state."""
 
     @property
     def total(self) -> int:
-        return self.received + self.scheduled + self.started + self.tested + self.reported
+        return (
+            self.received + self.scheduled + self.started + self.tested + self.reported + self.other
+        )
 
 
 @dataclass(frozen=True)
@@ -343,7 +347,10 @@ def overdue_samples(*, user: AnyUser, today: date, limit: int = 20) -> list[Over
 
 
 def work_per_technician(*, user: AnyUser, today: date, weeks: int = 12) -> list[TechnicianRow]:
-    """Lifecycle moves made by each person over the last ``weeks`` weeks (one grouped query)."""
+    """Lifecycle moves made by each person over the last ``weeks`` weeks (one grouped query).
+
+    "Received" counts samples logged in; a sample sent back to "received" counts under ``other``,
+    with holds and disposals."""
     since = _start_of_day(today - timedelta(weeks=weeks))
 
     def moves(status: SampleStatus) -> Count:
@@ -354,7 +361,8 @@ def work_per_technician(*, user: AnyUser, today: date, weeks: int = 12) -> list[
         .filter(at__gte=since)
         .values("by_id", "by__username", "by__first_name", "by__last_name")
         .annotate(
-            received=moves(SampleStatus.RECEIVED),
+            received=Count("pk", filter=Q(to_status=SampleStatus.RECEIVED, from_status="")),
+            moves_total=Count("pk"),
             scheduled=moves(SampleStatus.SCHEDULED),
             started=moves(SampleStatus.IN_TEST),
             tested=moves(SampleStatus.TESTED),
@@ -371,6 +379,12 @@ def work_per_technician(*, user: AnyUser, today: date, weeks: int = 12) -> list[
             started=r["started"],
             tested=r["tested"],
             reported=r["reported"],
+            other=r["moves_total"]
+            - r["received"]
+            - r["scheduled"]
+            - r["started"]
+            - r["tested"]
+            - r["reported"],
         )
         for r in rows
     ]

@@ -4,10 +4,12 @@ from __future__ import annotations
 
 from django import template
 from django.urls import reverse
+from django.utils.html import format_html
+from django.utils.safestring import mark_safe
 
 from testing import access, analysis
 from testing.access import AnyUser
-from testing.views.assets import plotly_version
+from testing.views.assets import plotly_style_ids, plotly_version
 from testing.views.common import optional_url
 
 register = template.Library()
@@ -17,6 +19,20 @@ register = template.Library()
 def plotly_src() -> str:
     """The versioned URL of the Plotly bundle from the installed package."""
     return reverse("plotly-js", args=[plotly_version()])
+
+
+@register.simple_tag(takes_context=True)
+def plotly_scripts(context: template.Context) -> str:
+    """The Plotly bundle's script tag and the empty style elements it writes into (see
+    :func:`testing.views.assets.plotly_style_ids`), all carrying this response's CSP nonce."""
+    request = context.get("request")
+    nonce = str(getattr(request, "csp_nonce", "")) if request is not None else ""
+    styles = "".join(
+        format_html('<style id="{}" nonce="{}"></style>', style_id, nonce)
+        for style_id in plotly_style_ids()
+    )
+    script = format_html('<script src="{}" nonce="{}"></script>', plotly_src(), nonce)
+    return mark_safe(styles + script)
 
 
 @register.simple_tag

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import re
 from functools import cache
 from pathlib import Path
 
@@ -15,6 +16,25 @@ _BUNDLE = Path(plotly.__file__).resolve().parent / "package_data" / "plotly.min.
 @cache
 def plotly_version() -> str:
     return str(plotly.__version__)
+
+
+@cache
+def plotly_style_ids() -> tuple[str, ...]:
+    """Ids of the ``<style>`` elements the bundle would insert itself.
+
+    Under our CSP a script may not insert a ``<style>`` element without the page's nonce. Plotly
+    writes its own rules into ``plotly.js-style-global`` through the CSSOM (allowed) if that element
+    already exists, and skips a bundled stylesheet (the map library's, unused here) whose id is
+    already present; so pages that load Plotly carry empty, nonce-bearing elements with these ids.
+    """
+    ids = ["plotly.js-style-global"]
+    if _BUNDLE.is_file():
+        text = _BUNDLE.read_text(encoding="utf-8", errors="replace")
+        ids += re.findall(
+            r'if\(!document\.getElementById\("([^"]+)"\)\)\{var \w+=document\.createElement\("style"\)',
+            text,
+        )
+    return tuple(dict.fromkeys(ids))
 
 
 @require_GET

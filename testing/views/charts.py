@@ -32,12 +32,12 @@ Figure = dict[str, Any]
 def layout_for(x_title: str, y_title: str, **extra: Any) -> dict[str, Any]:
     layout: dict[str, Any] = {
         "font": FONT,
-        "margin": {"l": 64, "r": 16, "t": 24, "b": 56},
+        "margin": {"l": 64, "r": 16, "t": 24, "b": 64},
         "paper_bgcolor": "#ffffff",
         "plot_bgcolor": "#fbfcfd",
         "xaxis": {"title": {"text": x_title}, "zeroline": False, "gridcolor": "#e3e8ee"},
         "yaxis": {"title": {"text": y_title}, "zeroline": False, "gridcolor": "#e3e8ee"},
-        "legend": {"orientation": "h", "y": -0.22},
+        "legend": {"orientation": "h", "y": -0.3, "yanchor": "top"},
         "hovermode": "closest",
     }
     layout.update(extra)
@@ -217,7 +217,8 @@ def consolidation_figure(c: StageCurves, colour_index: int = 0) -> Figure:
     shapes: list[dict[str, Any]] = []
     if c.taylor is not None and root_t:
         t = c.taylor
-        end = max(root_t[-1], t.sqrt_t90 * 1.2)
+        # Draw the construction over the part that matters: up to about twice √t100.
+        end = min(root_t[-1], 2.0 * math.sqrt(c.t100_min or t.t90_min * 1.2))
         data.append(
             {
                 "type": "scatter",
@@ -254,18 +255,28 @@ def consolidation_figure(c: StageCurves, colour_index: int = 0) -> Figure:
                 "x": [p[1] for p in points],
                 "y": [p[2] for p in points],
                 "text": [f"{p[0]} = {p[3]:.2f} min" for p in points],
-                "textposition": "top right",
+                "textposition": ["top right", "top right", "bottom left"][: len(points)],
                 "marker": {"color": "#1c2733", "size": 9, "symbol": "x"},
                 "hovertemplate": "%{text}<br>settlement %{y:.3f} mm<extra></extra>",
             }
         )
     layout = layout_for(
         "Square root of time √t (√min)",
-        "Settlement (mm, compression +)",
+        "Settlement (mm)",
         shapes=shapes,
         height=320,
+        showlegend=False,
     )
-    layout["yaxis"]["autorange"] = "reversed"
+    settlements = [d for d in c.consolidation_settlement_mm if d is not None]
+    if c.taylor is not None and root_t:
+        shown = [d for r, d in zip(root_t, settlements, strict=False) if r <= end]
+        low = min([*shown, c.taylor.d0_mm])
+        high = max([*shown, c.taylor.d100_mm])
+        pad = 0.08 * (high - low or 1.0)
+        layout["xaxis"]["range"] = [0.0, end]
+        layout["yaxis"]["range"] = [high + pad, low - pad]  # settlement downwards
+    else:
+        layout["yaxis"]["autorange"] = "reversed"
     return {"data": data, "layout": layout}
 
 

@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
+from typing import Any
 
 from django.http import HttpRequest, HttpResponse
 from django.shortcuts import render
@@ -13,6 +15,13 @@ from testing.views.charts import PALETTE, Figure, layout_for
 from testing.views.common import manager_page
 
 # --- Figures (Plotly JSON; each chart has a table under it on the page) -------------------------
+
+
+def _integer_axis(layout: dict[str, Any], largest: int) -> dict[str, Any]:
+    """Counts: whole-number ticks, about eight of them."""
+    layout["yaxis"]["dtick"] = max(1, math.ceil(largest / 8))
+    layout["yaxis"]["rangemode"] = "tozero"
+    return layout
 
 
 def weekly_figure(weeks: Sequence[WeekRow]) -> Figure:
@@ -36,7 +45,10 @@ def weekly_figure(weeks: Sequence[WeekRow]) -> Figure:
                 "hovertemplate": "Week of %{x}<br>%{y} samples reported<extra></extra>",
             },
         ],
-        "layout": layout_for("Week starting (Monday)", "Samples (count)", barmode="group"),
+        "layout": _integer_axis(
+            layout_for("Week starting (Monday)", "Samples (count)", barmode="group"),
+            max([w.received for w in weeks] + [w.reported for w in weeks] + [1]),
+        ),
     }
 
 
@@ -101,6 +113,7 @@ def technician_figure(dashboard: Dashboard) -> Figure:
         ("Started testing", "started"),
         ("Tested", "tested"),
         ("Reported", "reported"),
+        ("Held, disposed or sent back", "other"),
     ]
     return {
         "data": [
@@ -114,7 +127,10 @@ def technician_figure(dashboard: Dashboard) -> Figure:
             }
             for i, (label, attr) in enumerate(series)
         ],
-        "layout": layout_for("Person", "Lifecycle moves (count)", barmode="stack"),
+        "layout": _integer_axis(
+            layout_for("Person", "Lifecycle moves (count)", barmode="stack"),
+            max([r.total for r in rows] + [1]),
+        ),
     }
 
 

@@ -45,7 +45,7 @@ def test_detail(request: HttpRequest, test_id: int) -> HttpResponse:
             "envelope": page.envelopes[t],
             "figure": charts.envelope_figure(page.envelopes[t]),
             "chart_id": f"chart-env-{t}",
-            "title": f"{EnvelopeType(t).label} envelope: shear stress against normal stress",
+            "title": "Shear stress against normal stress",
         }
         for t in ENVELOPE_ORDER
         if t in page.envelopes

@@ -6,10 +6,13 @@ Bounded: 6 examples per operation and persona, no shrinking.
 
 from __future__ import annotations
 
+from collections.abc import Iterator
 from typing import Any
 
 import pytest
 import schemathesis
+from django.core import signals
+from django.db import close_old_connections
 from hypothesis import HealthCheck, Phase, settings
 from knox.models import AuthToken
 from schemathesis.checks import not_a_server_error
@@ -31,6 +34,20 @@ schema = schemathesis.openapi.from_wsgi("/api/schema/?format=json", application)
 # Generated examples and fuzzing only: the coverage phase enumerates every boundary case of every
 # parameter, which is far beyond this suite's time budget.
 schema.config.phases.update(phases=["examples", "fuzzing"])
+
+
+@pytest.fixture(autouse=True)
+def _keep_the_test_connection() -> Iterator[None]:
+    """Calls go straight to the WSGI app, so Django's request signals would close the database
+    connection after each one (it is inside the test's transaction); Django's own test client
+    disconnects the same handler for the same reason."""
+    signals.request_started.disconnect(close_old_connections)
+    signals.request_finished.disconnect(close_old_connections)
+    try:
+        yield
+    finally:
+        signals.request_started.connect(close_old_connections)
+        signals.request_finished.connect(close_old_connections)
 
 
 @pytest.fixture

@@ -190,3 +190,6 @@ class ShearReadingAdmin(admin.ModelAdmin[ShearReading]):
     list_filter = ("stage__test", "traverse")
     search_fields = ("stage__test__reference",)
     list_select_related = ("stage__test__project",)
+
+
+import testing.admin_equipment  # noqa: E402, F401  (equipment register and imports)

@@ -434,12 +434,20 @@ def _collect_test(
                     "SHBT_REVS": (
                         str(stage.traverses) if test.shear_type == ShearType.REVERSALS else ""
                     ),
-                    "SHBT_PEAK": ags_number(result and result.failure_shear_stress_kpa, "1DP"),
-                    "SHBT_RES": ags_number(result and result.residual_shear_stress_kpa, "1DP"),
-                    "SHBT_PDIS": ags_number(result and result.failure_horizontal_mm, "2DP"),
-                    "SHBT_RDIS": ags_number(result and result.residual_horizontal_mm, "2DP"),
-                    "SHBT_PDIN": ags_number(result and result.failure_vertical_mm, "2DP"),
-                    "SHBT_RDIN": ags_number(result and result.residual_vertical_mm, "2DP"),
+                    "SHBT_PEAK": ags_number(
+                        result.failure_shear_stress_kpa if result else None, "1DP"
+                    ),
+                    "SHBT_RES": ags_number(
+                        result.residual_shear_stress_kpa if result else None, "1DP"
+                    ),
+                    "SHBT_PDIS": ags_number(
+                        result.failure_horizontal_mm if result else None, "2DP"
+                    ),
+                    "SHBT_RDIS": ags_number(
+                        result.residual_horizontal_mm if result else None, "2DP"
+                    ),
+                    "SHBT_PDIN": ags_number(result.failure_vertical_mm if result else None, "2DP"),
+                    "SHBT_RDIN": ags_number(result.residual_vertical_mm if result else None, "2DP"),
                     "SHBT_PDEN": density,
                     "SHBT_IVR": ags_number(phase.get("ivr"), "3DP"),
                     "SHBT_MCI": ags_number(phase.get("mci"), "1DP"),
@@ -450,8 +458,12 @@ def _collect_test(
                         f"Specimen {sp.reference}"
                         + ("" if result else "; not yet reduced: set-up data only")
                     ),
-                    "SHBT_PVST": ags_number(result and result.failure_normal_stress_kpa, "0DP"),
-                    "SHBT_RVST": ags_number(result and result.residual_normal_stress_kpa, "0DP"),
+                    "SHBT_PVST": ags_number(
+                        result.failure_normal_stress_kpa if result else None, "0DP"
+                    ),
+                    "SHBT_RVST": ags_number(
+                        result.residual_normal_stress_kpa if result else None, "0DP"
+                    ),
                 }
             )
 

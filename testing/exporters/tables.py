@@ -70,10 +70,10 @@ def write_csv(table: Table) -> bytes:
 def write_xlsx(tables: Iterable[Table]) -> bytes:
     """One sheet per table; text cells typed as strings, numbers as numbers, no formulas."""
     from openpyxl import Workbook
-    from openpyxl.cell.cell import TYPE_STRING
+    from openpyxl.cell.cell import ILLEGAL_CHARACTERS_RE, TYPE_STRING
 
     book = Workbook(write_only=False)
-    book.remove(book.active)  # type: ignore[arg-type]
+    book.remove(book.worksheets[0])
     for table in tables:
         sheet = book.create_sheet(title=_sheet_title(table.title))
         for col, column in enumerate(table.columns, start=1):
@@ -86,6 +86,9 @@ def write_xlsx(tables: Iterable[Table]) -> bytes:
                 if clean is None:
                     continue
                 cell = sheet.cell(row=r, column=col)
+                if isinstance(clean, str):
+                    # XML cannot hold most control characters; drop them (the CSV keeps them).
+                    clean = neutralise(ILLEGAL_CHARACTERS_RE.sub("", clean))
                 cell.value = clean
                 if not column.numeric:
                     # openpyxl would otherwise store any text starting with "=" as a formula.

@@ -331,6 +331,7 @@ def load_demo(*, now: datetime | None = None) -> bool:
 
     _sand_set(project=project, sample=samples["B7"], user=technician, now=now)
     _clay_set(project=project, sample=samples["U4"], user=technician, now=now)
+    _logger_set(project=project, sample=samples["U8"], user=technician, manager=manager, now=now)
 
     project_b = Project.objects.create(
         organisation=org_b,
@@ -529,3 +530,191 @@ def _store_readings(
         shear=rows,
     )
     assert math.isfinite(rows[-1][3])
+
+
+# --- Equipment register and logger files (an expired calibration shows its flag) ----------------
+
+_LOGGER_LAYOUT_NAME = "Bench logger export (semicolon; min, in, kN)"
+
+
+def _logger_set(
+    *, project: Project, sample: Sample, user: User, manager: User, now: datetime
+) -> DirectShearTest:
+    """Test set DS-03: readings arrive as logger files (two layouts), force from a load cell whose
+    calibration had expired on the test date — its stages carry the CALIBRATION_EXPIRED flag."""
+    from django.core.files.base import ContentFile
+
+    from testing.services.equipment import (
+        apparatus_create,
+        calibration_record_create,
+        force_device_create,
+        stage_calibration_link,
+    )
+    from testing.services.imports import import_layout_save, stage_readings_import
+
+    params = demo_parameters()["clay"]
+    tested_on = now - timedelta(days=18)
+    machine = apparatus_create(
+        user=manager,
+        reference="SB-6",
+        description="60 mm square box, servo-driven, lever-loaded",
+        box_length_mm=_BOX_MM,
+        box_width_mm=_BOX_MM,
+        lever_ratio=_LEVER_RATIO,
+        hanger_mass_kg=_HANGER_MASS_KG,
+        verified_on=(now - timedelta(days=200)).date(),
+        verification_due_on=(now + timedelta(days=165)).date(),
+    )
+    cell = force_device_create(
+        user=manager,
+        reference="LC-12",
+        kind="load_cell",
+        capacity_n=2000.0,
+        reading_unit="N",
+        resolution=0.1,
+        apparatus=machine,
+    )
+    calibration_record_create(
+        user=manager,
+        device=cell,
+        certificate_number="FC-2025-0412",
+        issuing_lab="Northshire Force Calibration Ltd",
+        accreditation="invented accreditation no. 0000",
+        calibrated_on=(now - timedelta(days=410)).date(),
+        due_on=(now - timedelta(days=45)).date(),  # expired before the test date
+        model="polynomial",
+        coefficients=[0.35, 0.9982, 2.1e-6],
+        range_min=0.0,
+        range_max=2000.0,
+        expanded_uncertainty_n=1.8,
+        coverage_factor_k=2.0,
+    )
+    canonical = None  # the built-in canonical CSV layout
+    second = import_layout_save(
+        user=user,
+        name=_LOGGER_LAYOUT_NAME,
+        description="Logger with a two-line preamble, decimal commas, inches and kN, "
+        "gauge readings downward positive, one clock for both phases.",
+        columns={
+            "time": {"column": "Elapsed (min)", "unit": "min"},
+            "horizontal": {"column": "Horiz (in)", "unit": "in"},
+            "vertical": {"column": "Vert (in)", "unit": "in"},
+            "force": {"column": "Load (kN)", "unit": "kN"},
+            "phase": {"column": "Stage"},
+        },
+        delimiter=";",
+        decimal_comma=True,
+        header_row=3,
+        phase_values={"C": "consolidation", "S": "shear"},
+        vertical_sign=-1,
+        rebase_each_phase=True,
+    )
+    test = shear_test_create(
+        user=user,
+        project=project,
+        reference="DS-03",
+        method="astm-d3080",
+        apparatus="SB-6 (60 mm, load cell LC-12)",
+        apparatus_record=machine,
+        box_length_mm=_BOX_MM,
+        box_width_mm=_BOX_MM,
+        requested_on=(now - timedelta(days=22)).date(),
+        instructions="Drained peak strength; readings from the data logger.",
+    )
+    for number, sigma in enumerate(_NORMAL_STRESSES_KPA, start=1):
+        height = 20.0
+        initial, dry = _specimen_masses(height, 1.60 - 0.004 * number, 0.24)
+        specimen = specimen_create(
+            user=user,
+            sample=sample,
+            reference=f"S{number}",
+            depth_top_m=sample.depth_top_m + Decimal("0.05") * number,
+            preparation="undisturbed",
+            length_mm=_BOX_MM,
+            width_mm=_BOX_MM,
+            height_mm=height,
+            initial_mass_g=initial,
+            dry_mass_g=dry,
+            final_mass_g=round(dry * 1.22, 2),
+            max_particle_size_mm=2.0,
+            particle_density_mg_m3=2.68,
+            particle_density_assumed=True,
+            description=sample.description,
+        )
+        stage = stage_create(
+            user=user,
+            test=test,
+            specimen=specimen,
+            stage_number=number,
+            direct_mass_kg=_DIRECT_MASS_KG,
+            hanger_mass_kg=_HANGER_MASS_KG,
+            weights_mass_kg=_weights_for(sigma),
+            lever_ratio=_LEVER_RATIO,
+            force_unit=ForceUnit.NEWTON,
+            rate_mm_per_min=params.rate_mm_per_min,
+            consolidation_started_at=tested_on + timedelta(hours=4 * number),
+            shear_started_at=tested_on + timedelta(hours=4 * number + 2),
+        )
+        stage_calibration_link(user=user, stage=stage, device=cell)
+        cons = consolidation_readings(
+            seed=300 + number,
+            normal_stress_kpa=sigma,
+            height_mm=height,
+            t50_min=params.t50_min,
+            final_settlement_mm=params.settlement_per_100_kpa_mm * sigma / 100.0,
+        )
+        shear = shear_readings(
+            seed=300 + number,
+            soil=params.soil,
+            normal_stress_kpa=sigma,
+            rate_mm_per_min=params.rate_mm_per_min,
+            phi_peak_deg=params.phi_peak_deg,
+            phi_cv_deg=params.phi_cv_deg,
+            cohesion_kpa=params.cohesion_kpa,
+            displacement_to_peak_mm=params.displacement_to_peak_mm,
+            max_dilation_deg=params.max_dilation_deg,
+            contraction_mm=params.contraction_mm,
+            ring_constant_n_per_div=None,
+        )
+        if number < 3:
+            lines = [
+                "time_s,horizontal_displacement_mm,vertical_displacement_mm,shear_force_n,phase"
+            ]
+            lines += [
+                f"{60 * t:.1f},,{-s:.4f},,consolidation"
+                for t, s in zip(cons.elapsed_min, cons.settlement_mm, strict=True)
+            ]
+            lines += [
+                f"{60 * t:.1f},{x:.4f},{y:.4f},{f:.2f},shear"
+                for t, x, y, f in zip(
+                    shear.elapsed_min, shear.horizontal_mm, shear.vertical_mm, shear.shear_force_n,
+                    strict=True,
+                )
+            ]  # fmt: skip
+            name, layout = f"DS-03_S{number}_logger.csv", canonical
+        else:
+            start = (
+                float(cons.elapsed_min[-1]) + 5.0
+            )  # shearing starts 5 min after consolidation ends
+            settled = float(cons.settlement_mm[-1])
+            lines = ["Logger SN 40-117;Harlow Moss DS-03 S3", "Gauge zero at load-on;;;;"]
+            lines.append("Elapsed (min);Horiz (in);Vert (in);Load (kN);Stage")
+            lines += [
+                f"{t:.3f};0;{s / 25.4:.6f};0;C".replace(".", ",")
+                for t, s in zip(cons.elapsed_min, cons.settlement_mm, strict=True)
+            ]
+            lines += [
+                f"{start + t:.3f};{x / 25.4:.6f};{(settled - y) / 25.4:.6f};{f / 1000:.5f};S".replace(".", ",")
+                for t, x, y, f in zip(
+                    shear.elapsed_min, shear.horizontal_mm, shear.vertical_mm, shear.shear_force_n,
+                    strict=True,
+                )
+            ]  # fmt: skip
+            name, layout = f"DS-03_S{number}_bench-logger.txt", second
+        upload = ContentFile(("\r\n".join(lines) + "\r\n").encode(), name=name)
+        record = stage_readings_import(user=user, stage=stage, upload=upload, layout=layout)
+        if record.state != "succeeded":
+            raise RuntimeError(
+                f"demo logger file {name} did not import: {record.reason} {record.errors[:3]}"
+            )
+    return test

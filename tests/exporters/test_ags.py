@@ -36,7 +36,8 @@ pytestmark = pytest.mark.django_db
 def demo(django_capture_on_commit_callbacks: Any, settings: Any, tmp_path: Path) -> Project:
     """The demo scenario with every stage reduced and every envelope fitted."""
     settings.MEDIA_ROOT = tmp_path / "media"
-    call_command("loaddemo", stdout=StringIO())
+    with django_capture_on_commit_callbacks(execute=True):  # runs the imports' reductions too
+        call_command("loaddemo", stdout=StringIO())
     project = Project.objects.get(reference="TL-2026-014")
     from django.contrib.auth import get_user_model
 

@@ -1,0 +1,192 @@
+"""Import 1,000,000 readings from a canonical CSV on PostgreSQL, against a bare COPY floor.
+
+Measured: ``stage_readings_import`` end to end — read and hash the upload, store the original,
+parse, map units, validate every row, write the readings with their indexes and constraints,
+request the stage reduction. Floor, in the same run: ``COPY … FROM STDIN (FORMAT csv)``
+streaming the same file into a plain table of the file's shape. Both run inside a transaction
+that is rolled back afterwards (so neither pays for the commit, and the reduction the import
+requests on commit is not run). Best of ``REPEATS`` for each.
+
+Targets: ratio ≤ 2 and import < 10 s. Needs PostgreSQL: uses ``DATABASE_URL`` if it points at
+PostgreSQL, else creates a scratch database ``tauline_bench`` on 127.0.0.1:5432 and drops it.
+
+    .venv/bin/python benchmarks/bench_import.py [--rows 1000000]
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT))
+
+RATIO_TARGET = 2.0
+ABSOLUTE_TARGET_S = 10.0
+REPEATS = 2
+SCRATCH_DB = "tauline_bench"
+
+
+def _write_file(path: Path, rows: int) -> None:
+    import numpy as np
+
+    rng = np.random.default_rng(7)
+    t = np.arange(rows) * 0.5
+    x = np.linspace(0.0, 10.0, rows)
+    y = 0.3 * np.tanh(x) + rng.normal(0, 0.001, rows)
+    f = 300.0 * np.tanh(x / 1.5) + rng.normal(0, 0.5, rows)
+    with path.open("w", newline="") as out:
+        out.write("time_s,horizontal_displacement_mm,vertical_displacement_mm,shear_force_n\r\n")
+        block = 100_000
+        for start in range(0, rows, block):
+            stop = min(rows, start + block)
+            out.write(
+                "".join(
+                    f"{a:.1f},{b:.4f},{c:.4f},{d:.2f}\r\n"
+                    for a, b, c, d in zip(
+                        t[start:stop], x[start:stop], y[start:stop], f[start:stop], strict=True
+                    )
+                )
+            )
+
+
+def main() -> int:
+    parser = argparse.ArgumentParser()
+    parser.add_argument("--rows", type=int, default=1_000_000)
+    args = parser.parse_args()
+
+    url = os.environ.get("DATABASE_URL", "")
+    scratch = not url.startswith(("postgres://", "postgresql://"))
+    pg = ["-h", "127.0.0.1", "-U", "postgres"]
+    if scratch:
+        subprocess.run(["dropdb", "--if-exists", *pg, SCRATCH_DB], check=True)
+        subprocess.run(["createdb", *pg, SCRATCH_DB], check=True)
+        url = f"postgres://postgres@127.0.0.1:5432/{SCRATCH_DB}"
+    os.environ["DATABASE_URL"] = url
+    os.environ.pop("REDIS_URL", None)
+    os.environ.setdefault("DJANGO_SETTINGS_MODULE", "labsite.settings")
+    try:
+        return _run(args.rows)
+    finally:
+        if scratch:
+            from django.db import connections
+
+            connections.close_all()
+            subprocess.run(["dropdb", "--if-exists", *pg, SCRATCH_DB], check=False)
+
+
+def _run(rows: int) -> int:
+    import django
+
+    django.setup()
+    from datetime import date
+    from decimal import Decimal
+
+    from django.conf import settings
+    from django.core.files import File
+    from django.core.management import call_command
+    from django.db import connection, transaction
+
+    from testing.models import Borehole, Organisation, Project, ReadingImport, Role
+    from testing.services.accounts import lab_user_create
+    from testing.services.imports import stage_readings_import
+    from testing.services.records import sample_receive, specimen_create
+    from testing.services.shear_setup import shear_test_create, stage_create
+
+    tmp = Path(tempfile.mkdtemp(prefix="bench-import-"))
+    settings.MEDIA_ROOT = tmp / "media"
+    for app in ("contenttypes", "auth", "testing"):  # only what the import touches
+        call_command("migrate", app, verbosity=0)
+    path = tmp / "readings.csv"
+    _write_file(path, rows)
+    settings.TAULINE_MAX_UPLOAD_BYTES = path.stat().st_size + 1
+
+    with transaction.atomic():
+        user = lab_user_create(
+            username=f"bench-{time.time_ns()}", password="x", roles=[Role.TECHNICIAN]
+        )
+        org = Organisation.objects.create(
+            name=f"Bench {time.time_ns()}", code=f"bench-{time.time_ns()}"
+        )
+        project = Project.objects.create(
+            organisation=org, reference=f"B-{time.time_ns()}", name="Bench"
+        )
+        bh = Borehole.objects.create(project=project, reference="BH1")
+        sample = sample_receive(
+            user=user, borehole=bh, reference="U1", depth_top_m=Decimal("1.00"),
+            depth_base_m=Decimal("1.45"), sample_type="U", received_on=date(2026, 1, 5),
+        )  # fmt: skip
+        specimen = specimen_create(
+            user=user, sample=sample, reference="S1", depth_top_m=Decimal("1.00"),
+            preparation="undisturbed", length_mm=60.0, width_mm=60.0, height_mm=20.0,
+            initial_mass_g=140.0,
+        )  # fmt: skip
+        test = shear_test_create(
+            user=user, project=project, reference="DS-B", method="bs-1377-7",
+            box_length_mm=60.0, box_width_mm=60.0, requested_on=date(2026, 1, 5),
+        )  # fmt: skip
+        stage = stage_create(
+            user=user, test=test, specimen=specimen, stage_number=1, direct_mass_kg=1.25,
+            hanger_mass_kg=0.5, weights_mass_kg=2.0, lever_ratio=10.0, force_unit="N",
+        )  # fmt: skip
+
+    def run_import() -> float:
+        with transaction.atomic():
+            start = time.perf_counter()
+            with path.open("rb") as fh:
+                record = stage_readings_import(
+                    user=user, stage=stage, upload=File(fh, name="readings.csv")
+                )
+            elapsed = time.perf_counter() - start
+            assert record.state == "succeeded", (record.state, record.reason, record.errors[:3])
+            assert record.shear_rows == rows
+            with connection.cursor() as cursor:
+                cursor.execute(
+                    "SELECT count(*) FROM testing_shearreading WHERE stage_id = %s", [stage.pk]
+                )
+                assert cursor.fetchone()[0] == rows
+            transaction.set_rollback(True)
+        ReadingImport.objects.filter(stage=stage).delete()
+        return elapsed
+
+    def run_floor() -> float:
+        with transaction.atomic(), connection.cursor() as cursor:
+            cursor.execute(
+                "CREATE TABLE bench_floor (time_s float8, horizontal_displacement_mm float8, "
+                "vertical_displacement_mm float8, shear_force_n float8)"
+            )
+            start = time.perf_counter()
+            with (
+                path.open("rb") as fh,
+                cursor.cursor.copy("COPY bench_floor FROM STDIN (FORMAT csv, HEADER true)") as copy,
+            ):
+                while chunk := fh.read(1 << 20):
+                    copy.write(chunk)
+            elapsed = time.perf_counter() - start
+            cursor.execute("SELECT count(*) FROM bench_floor")
+            assert cursor.fetchone()[0] == rows
+            transaction.set_rollback(True)
+        return elapsed
+
+    import pandas  # noqa: F401  (warm import, as in a running server)
+
+    floor = min(run_floor() for _ in range(REPEATS))
+    ours = min(run_import() for _ in range(REPEATS))
+    ratio = ours / floor
+    print(
+        f"bench import_{rows}_readings: {ours:.2f} s; baseline {floor:.2f} s; "
+        f"ratio {ratio:.2f} (target <= {RATIO_TARGET:g}; absolute target < {ABSOLUTE_TARGET_S:g} s)"
+    )
+    ok = ratio <= RATIO_TARGET and ours < ABSOLUTE_TARGET_S
+    if not ok:
+        print("bench import: target missed", file=sys.stderr)
+    return 0 if ok else 1
+
+
+if __name__ == "__main__":
+    sys.exit(main())

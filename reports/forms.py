@@ -19,7 +19,8 @@ class ReportCreateForm(forms.Form):
     title = forms.CharField(max_length=200, initial="Direct shear test report")
     remarks = forms.CharField(widget=forms.Textarea(attrs={"rows": 3}), required=False)
     deviations = forms.CharField(
-        widget=forms.Textarea(attrs={"rows": 3}), required=False,
+        widget=forms.Textarea(attrs={"rows": 3}),
+        required=False,
         help_text="Additions to, deviations from or exclusions from the method.",
     )
 

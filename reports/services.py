@@ -529,7 +529,9 @@ def revision_supersede(*, user: User, revision: ReportRevision, reason: str) -> 
         raise ServiceError("Give the reason for the amendment.")
     with transaction.atomic():
         current = (
-            ReportRevision.objects.select_for_update(of=("self",)).select_related("report").get(pk=revision.pk)
+            ReportRevision.objects.select_for_update(of=("self",))
+            .select_related("report")
+            .get(pk=revision.pk)
         )
         if current.state != RevisionState.ISSUED:
             raise Conflict(f"{current.label} is not the current issued revision; amend that one.")

@@ -66,12 +66,19 @@ def verify_pdf_bytes(data: bytes) -> Verification:
         )
     if not check.valid:
         return Verification(
-            authentic=False, sha256=sha, signature=check, revision=revision,
+            authentic=False,
+            sha256=sha,
+            signature=check,
+            revision=revision,
             message=f"not valid: the laboratory signature does not check ({check.problem}).",
         )
     replaced_by = replacement_of(revision)
     return Verification(
-        authentic=True, sha256=sha, signature=check, revision=revision, replaced_by=replaced_by,
+        authentic=True,
+        sha256=sha,
+        signature=check,
+        revision=revision,
+        replaced_by=replaced_by,
         message=_describe(revision, replaced_by),
     )
 
@@ -79,15 +86,21 @@ def verify_pdf_bytes(data: bytes) -> Verification:
 def verify_number_and_hash(*, number: str, sha256: str) -> Verification:
     sha = sha256.strip().lower()
     if not _SHA256.match(sha):
-        return Verification(authentic=False, message="not valid: a sha256 is 64 hexadecimal characters.")
+        return Verification(
+            authentic=False, message="not valid: a sha256 is 64 hexadecimal characters."
+        )
     revision = _issued(sha)
     if revision is None or revision.report.number != number.strip():
         return Verification(
-            authentic=False, sha256=sha,
+            authentic=False,
+            sha256=sha,
             message="not valid: no issued revision has that report number and fingerprint.",
         )
     replaced_by = replacement_of(revision)
     return Verification(
-        authentic=True, sha256=sha, revision=revision, replaced_by=replaced_by,
+        authentic=True,
+        sha256=sha,
+        revision=revision,
+        replaced_by=replaced_by,
         message=_describe(revision, replaced_by),
     )

@@ -44,7 +44,9 @@ def report_list(request: HttpRequest) -> HttpResponse:
 @require_http_methods(["GET", "POST"])
 def report_create(request: HttpRequest) -> HttpResponse:
     user = _staff(request)
-    form = forms.ReportCreateForm(request.POST or None, initial={"project": request.GET.get("project")})
+    form = forms.ReportCreateForm(
+        request.POST or None, initial={"project": request.GET.get("project")}
+    )
     if request.method == "POST" and form.is_valid():
         try:
             revision = services.report_create(
@@ -85,7 +87,11 @@ def revision_detail(request: HttpRequest, pk: int) -> HttpResponse:
             "sign_form": forms.SignForm(initial={"content_sha256": revision.content_sha256}),
             "reason_form": forms.ReasonForm(),
             "edit_form": forms.RevisionEditForm(
-                initial={"title": revision.title, "remarks": revision.remarks, "deviations": revision.deviations}
+                initial={
+                    "title": revision.title,
+                    "remarks": revision.remarks,
+                    "deviations": revision.deviations,
+                }
             ),
             "charts_json": charts,
         },
@@ -103,7 +109,12 @@ def revision_pdf(request: HttpRequest, pk: int) -> FileResponse:
     revision = _revision(request, pk)
     if not revision.pdf:
         raise Http404("This revision has no PDF yet.")
-    return FileResponse(revision.pdf.open("rb"), as_attachment=True, filename=f"{revision.report.number}-rev{revision.number}.pdf", content_type="application/pdf")
+    return FileResponse(
+        revision.pdf.open("rb"),
+        as_attachment=True,
+        filename=f"{revision.report.number}-rev{revision.number}.pdf",
+        content_type="application/pdf",
+    )
 
 
 @login_required
@@ -142,10 +153,14 @@ def revision_sign(request: HttpRequest, pk: int, action: str) -> HttpResponse:
             messages.success(request, "Issued: the signed PDF is being prepared.")
         elif action in _SIGN_ACTIONS:
             _SIGN_ACTIONS[action](
-                user=user, revision=revision, password=password,
+                user=user,
+                revision=revision,
+                password=password,
                 expected_content_sha256=form.cleaned_data.get("content_sha256") or None,
             )
-            messages.success(request, f"Signed: {action}ed." if action != "approve" else "Signed: approved.")
+            messages.success(
+                request, f"Signed: {action}ed." if action != "approve" else "Signed: approved."
+            )
         else:
             raise Http404("No such action.")
     except ServiceError as exc:
@@ -162,7 +177,9 @@ def revision_supersede(request: HttpRequest, pk: int) -> HttpResponse:
         messages.error(request, "Give the reason for the amendment.")
         return redirect("reports:revision", pk=pk)
     try:
-        new = services.revision_supersede(user=_staff(request), revision=revision, reason=form.cleaned_data["reason"])
+        new = services.revision_supersede(
+            user=_staff(request), revision=revision, reason=form.cleaned_data["reason"]
+        )
     except ServiceError as exc:
         messages.error(request, str(exc))
         return redirect("reports:revision", pk=pk)
@@ -176,7 +193,9 @@ def revision_withdraw(request: HttpRequest, pk: int) -> HttpResponse:
     form = forms.ReasonForm(request.POST)
     if form.is_valid():
         try:
-            services.revision_withdraw(user=_staff(request), revision=revision, reason=form.cleaned_data["reason"])
+            services.revision_withdraw(
+                user=_staff(request), revision=revision, reason=form.cleaned_data["reason"]
+            )
         except ServiceError as exc:
             messages.error(request, str(exc))
     return redirect("reports:revision", pk=pk)
@@ -190,12 +209,24 @@ def revision_audit(request: HttpRequest, pk: int) -> HttpResponse:
         response = HttpResponse(content_type="text/csv; charset=utf-8")
         response["Content-Disposition"] = f'attachment; filename="audit-revision-{revision.pk}.csv"'
         writer = csv.writer(response)
-        writer.writerow(["at_utc", "actor", "action", "subject", "field", "old_value", "new_value", "reason"])
+        writer.writerow(
+            ["at_utc", "actor", "action", "subject", "field", "old_value", "new_value", "reason"]
+        )
         for e in events:
-            row = [e.at.isoformat(), e.actor_name, e.action, e.subject, e.field,
-                   json.dumps(e.old_value, ensure_ascii=False), json.dumps(e.new_value, ensure_ascii=False), e.reason]
+            row = [
+                e.at.isoformat(),
+                e.actor_name,
+                e.action,
+                e.subject,
+                e.field,
+                json.dumps(e.old_value, ensure_ascii=False),
+                json.dumps(e.new_value, ensure_ascii=False),
+                e.reason,
+            ]
             # Spreadsheets evaluate cells starting with = + - @ (and tab/CR): neutralise them.
-            writer.writerow(["'" + c if c[:1] in ("=", "+", "-", "@", "\t", "\r") else c for c in row])
+            writer.writerow(
+                ["'" + c if c[:1] in ("=", "+", "-", "@", "\t", "\r") else c for c in row]
+            )
         return response
     return render(request, "reports/audit.html", {"revision": revision, "events": events})
 
@@ -212,5 +243,7 @@ def verify(request: HttpRequest) -> HttpResponse:
                 raise PermissionDenied("File too large.")
             result = verify_pdf_bytes(upload.read())
         else:
-            result = verify_number_and_hash(number=form.cleaned_data["number"], sha256=form.cleaned_data["sha256"])
+            result = verify_number_and_hash(
+                number=form.cleaned_data["number"], sha256=form.cleaned_data["sha256"]
+            )
     return render(request, "reports/verify.html", {"form": form, "result": result})

@@ -228,7 +228,6 @@ class ReportRevision(models.Model):
                         )
         super().save(*args, **kwargs)
 
-
     @property
     def label(self) -> str:
         """The identifier printed on every page: report number and revision."""
@@ -237,6 +236,7 @@ class ReportRevision(models.Model):
     @property
     def is_current(self) -> bool:
         return self.state == RevisionState.ISSUED
+
 
 class RevisionChange(models.Model):
     """One changed item in an amendment: what it was, what it is now, and why."""

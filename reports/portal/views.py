@@ -30,7 +30,11 @@ def portal_revision(request: HttpRequest, public_id: str) -> HttpResponse:
     return render(
         request,
         "portal/revision.html",
-        {"revision": revision, "replaced_by": selectors.replacement_of(revision), "changes": revision.changes.all()},
+        {
+            "revision": revision,
+            "replaced_by": selectors.replacement_of(revision),
+            "changes": revision.changes.all(),
+        },
     )
 
 
@@ -40,8 +44,10 @@ def portal_pdf(request: HttpRequest, public_id: str) -> FileResponse:
     if not revision.pdf or revision.issued_at is None:
         raise Http404("No such record.")
     return FileResponse(
-        revision.pdf.open("rb"), as_attachment=True,
-        filename=f"{revision.report.number}-rev{revision.number}.pdf", content_type="application/pdf",
+        revision.pdf.open("rb"),
+        as_attachment=True,
+        filename=f"{revision.report.number}-rev{revision.number}.pdf",
+        content_type="application/pdf",
     )
 
 
@@ -60,8 +66,11 @@ def portal_verify(request: HttpRequest, public_id: str) -> HttpResponse:
         if upload.size > MAX_UPLOAD_BYTES:
             raise PermissionDenied("File too large.")
         result = verify_pdf_bytes(upload.read())
-        matches = result.authentic and result.revision is not None and result.revision.pk == revision.pk
+        matches = (
+            result.authentic and result.revision is not None and result.revision.pk == revision.pk
+        )
     return render(
-        request, "portal/verify.html",
+        request,
+        "portal/verify.html",
         {"revision": revision, "form": form, "result": result, "matches": matches},
     )

@@ -17,8 +17,12 @@ from tests.reports.conftest import issue
 def _recomputed(result: StageResult, new_tau_kpa: float) -> StageResult:
     """A later result row for the same inputs (as a corrected reduction would write)."""
     run = ComputationRun.objects.create(
-        kind="stage_reduction", subject_key=f"stage:{result.stage_id}", state="succeeded",
-        reason="corrected failure pick", test=result.stage.test, stage=result.stage,
+        kind="stage_reduction",
+        subject_key=f"stage:{result.stage_id}",
+        state="succeeded",
+        reason="corrected failure pick",
+        test=result.stage.test,
+        stage=result.stage,
     )
     copy = StageResult.objects.get(pk=result.pk)
     copy.pk = None
@@ -70,7 +74,9 @@ def test_supersede_after_three_changed_values(
     with old.pdf.open("rb") as fh:
         assert fh.read() == old_bytes
     assert hashlib.sha256(old_bytes).hexdigest() == old.pdf_sha256
-    assert ReportRevision.objects.filter(report=issued.report, state="issued").get().pk == amendment.pk
+    assert (
+        ReportRevision.objects.filter(report=issued.report, state="issued").get().pk == amendment.pk
+    )
 
     with amendment.pdf.open("rb") as fh:
         text = subprocess.run(

@@ -61,7 +61,9 @@ def _payload(port: int, secret_file: Path) -> str:
 
 
 def test_injection_in_every_text_field(
-    cast: Cast, records_a: Records, canary: tuple[int, list[str]],
+    cast: Cast,
+    records_a: Records,
+    canary: tuple[int, list[str]],
     django_capture_on_commit_callbacks: Callable[..., Any],
 ) -> None:
     port, hits = canary
@@ -75,14 +77,22 @@ def test_injection_in_every_text_field(
     Project.objects.filter(pk=records_a.project.pk).update(
         name=f"Site{text}", site_name=text, site_location=text, client_reference=text[:80]
     )
-    Sample.objects.filter(pk=records_a.sample.pk).update(description=text, condition_on_receipt=text[:200])
+    Sample.objects.filter(pk=records_a.sample.pk).update(
+        description=text, condition_on_receipt=text[:200]
+    )
     records_a.project.refresh_from_db()
     records_a.sample.refresh_from_db()
-    test = build_test_set(user=cast.technician, project=records_a.project, sample=records_a.sample, text=text)
+    test = build_test_set(
+        user=cast.technician, project=records_a.project, sample=records_a.sample, text=text
+    )
     compute(test, cast.technician, django_capture_on_commit_callbacks)
     revision = services.report_create(
-        user=cast.technician, project=records_a.project, tests=[test],
-        title=f"Report{text}"[:200], remarks=text, deviations=text,
+        user=cast.technician,
+        project=records_a.project,
+        tests=[test],
+        title=f"Report{text}"[:200],
+        remarks=text,
+        deviations=text,
     )
     fetcher = RestrictedFetcher()
     html = render_report_html(revision)
@@ -93,7 +103,9 @@ def test_injection_in_every_text_field(
     assert all(not u.startswith(("http://127.0.0.1", "file:")) for u in fetcher.served)
     reader = PdfReader(io.BytesIO(pdf))
     assert reader.attachments == {}  # 0 attachments
-    out = subprocess.run(["pdftotext", "-", "-"], input=pdf, capture_output=True, check=True).stdout.decode()
+    out = subprocess.run(
+        ["pdftotext", "-", "-"], input=pdf, capture_output=True, check=True
+    ).stdout.decode()
     assert "CANARY-FILE-CONTENT-7f3a" not in out  # 0 files read into the document
     flat = " ".join(out.split())
     # The markup appears as text, escaped, not interpreted.
@@ -102,5 +114,5 @@ def test_injection_in_every_text_field(
     assert "<svg><image href=" in flat
     style = html.split("<style>", 1)[1].split("</style>", 1)[0]
     assert "127.0.0.1" not in style and "file:" not in style  # no user text in our stylesheet
-    assert "<link rel=\"attachment\"" not in html  # never raw in the HTML
+    assert '<link rel="attachment"' not in html  # never raw in the HTML
     secret.unlink()

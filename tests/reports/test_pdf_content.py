@@ -83,7 +83,8 @@ def test_poppler_text_and_page_one_renders(issued: ReportRevision) -> None:
         src.write_bytes(data)
         subprocess.run(
             ["pdftoppm", "-png", "-r", "60", "-f", "1", "-l", "1", str(src), f"{folder}/page"],
-            check=True, timeout=60,
+            check=True,
+            timeout=60,
         )
         png = next(Path(folder).glob("page*.png"))
         assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
@@ -101,6 +102,11 @@ def test_content_snapshot_query_count(
         # (shear and consolidation readings) = 6.
         tests = report_tests_load([computed_set.pk])
         build_content(
-            tests=tests, report_number="TR-X", revision_number=1, revision_id="x",
-            title="t", remarks="", deviations="",
+            tests=tests,
+            report_number="TR-X",
+            revision_number=1,
+            revision_id="x",
+            title="t",
+            remarks="",
+            deviations="",
         )

@@ -57,7 +57,9 @@ def test_drafts_are_invisible_to_clients(cast: Cast, draft: ReportRevision) -> N
 def test_superseded_revision_is_marked_and_links_to_replacement(
     cast: Cast, issued: ReportRevision, django_capture_on_commit_callbacks: Callable[..., Any]
 ) -> None:
-    new = services.revision_supersede(user=cast.technician, revision=issued, reason="Typo in remarks")
+    new = services.revision_supersede(
+        user=cast.technician, revision=issued, reason="Typo in remarks"
+    )
     services.revision_update(user=cast.technician, revision=new, remarks="Corrected remarks.")
     services.revision_check(user=cast.checker, revision=new, password=PASSWORD)
     services.revision_approve(user=cast.approver, revision=new, password=PASSWORD)
@@ -75,13 +77,19 @@ def test_portal_verification_page_checks_an_upload(cast: Cast, issued: ReportRev
         data = fh.read()
     from django.core.files.uploadedfile import SimpleUploadedFile
 
-    ok = a.post(reverse("portal:verify", args=[issued.public_id]),
-                {"file": SimpleUploadedFile("r.pdf", data, "application/pdf")})
+    ok = a.post(
+        reverse("portal:verify", args=[issued.public_id]),
+        {"file": SimpleUploadedFile("r.pdf", data, "application/pdf")},
+    )
     assert "Valid." in ok.content.decode()
     bad = bytearray(data)
     bad[1000] ^= 1
-    nok = a.post(reverse("portal:verify", args=[issued.public_id]),
-                 {"file": SimpleUploadedFile("r.pdf", bytes(bad), "application/pdf")})
+    nok = a.post(
+        reverse("portal:verify", args=[issued.public_id]),
+        {"file": SimpleUploadedFile("r.pdf", bytes(bad), "application/pdf")},
+    )
     assert "Not this report." in nok.content.decode()
-    public = Client().post(reverse("reports:verify"), {"file": SimpleUploadedFile("r.pdf", data, "application/pdf")})
+    public = Client().post(
+        reverse("reports:verify"), {"file": SimpleUploadedFile("r.pdf", data, "application/pdf")}
+    )
     assert "valid: authentic" in public.content.decode()

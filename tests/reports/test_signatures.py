@@ -66,6 +66,8 @@ def test_poppler_reads_the_signature_as_valid(issued: ReportRevision) -> None:
         with issued.pdf.open("rb") as src:
             fh.write(src.read())
         fh.flush()
-        out = subprocess.run(["pdfsig", fh.name], capture_output=True, text=True, check=False).stdout
+        out = subprocess.run(
+            ["pdfsig", fh.name], capture_output=True, text=True, check=False
+        ).stdout
     assert "Signature is Valid" in out, out
     assert "Total document signed" in out, out

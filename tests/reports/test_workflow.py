@@ -15,7 +15,9 @@ from tests.conftest import PASSWORD, Cast
 from tests.reports.conftest import issue
 
 
-def test_preparer_cannot_check_and_checker_cannot_approve(cast: Cast, draft: ReportRevision) -> None:
+def test_preparer_cannot_check_and_checker_cannot_approve(
+    cast: Cast, draft: ReportRevision
+) -> None:
     with pytest.raises(services.NotAllowed):
         services.revision_check(user=cast.technician, revision=draft, password=PASSWORD)
     with pytest.raises(services.NotAllowed):  # an approver without the checker role
@@ -36,7 +38,9 @@ def test_preparer_cannot_check_and_checker_cannot_approve(cast: Cast, draft: Rep
 
 def test_database_refuses_checker_equal_to_preparer(cast: Cast, draft: ReportRevision) -> None:
     with pytest.raises(IntegrityError), transaction.atomic():
-        ReportRevision.objects.filter(pk=draft.pk).update(state="checked", checked_by=cast.technician)
+        ReportRevision.objects.filter(pk=draft.pk).update(
+            state="checked", checked_by=cast.technician
+        )
 
 
 def test_database_refuses_approver_equal_to_checker(cast: Cast, draft: ReportRevision) -> None:
@@ -150,4 +154,7 @@ def test_fifty_parallel_issue_requests_issue_once(cast: Cast, draft: ReportRevis
         t.join(timeout=120)
     assert outcomes.count("claimed") == 1, outcomes
     assert outcomes.count("conflict") == 49
-    assert ReportRevision.objects.filter(report=draft.report, state__in=["issuing", "issued"]).count() == 1
+    assert (
+        ReportRevision.objects.filter(report=draft.report, state__in=["issuing", "issued"]).count()
+        == 1
+    )

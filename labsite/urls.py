@@ -12,6 +12,8 @@ urlpatterns = [
     path("accounts/logout/", auth_views.LogoutView.as_view(), name="logout"),
     path("admin/", admin.site.urls),
     path("api/", include("labsite.api_urls")),
+    path("portal/", include("reports.portal.urls")),
+    path("", include("reports.urls")),
     path("", include("testing.urls")),
 ]
 

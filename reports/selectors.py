@@ -7,6 +7,8 @@ same as a revision that does not exist.
 
 from __future__ import annotations
 
+import uuid
+
 from django.db.models import Q, QuerySet
 from django.http import Http404
 
@@ -43,14 +45,14 @@ def reports_for_user(*, user: AnyUser) -> QuerySet[Report]:
     return Report.objects.select_related("project__organisation").prefetch_related("tests")
 
 
-def revision_get_for_user(*, user: AnyUser, revision_id: object) -> ReportRevision:
+def revision_get_for_user(*, user: AnyUser, revision_id: int | str) -> ReportRevision:
     try:
         return revisions_for_user(user=user).get(pk=revision_id)
     except (ReportRevision.DoesNotExist, ValueError, TypeError) as exc:
         raise Http404("No such record.") from exc
 
 
-def revision_get_by_public_id(*, user: AnyUser, public_id: object) -> ReportRevision:
+def revision_get_by_public_id(*, user: AnyUser, public_id: uuid.UUID | str) -> ReportRevision:
     try:
         return revisions_for_user(user=user).get(public_id=public_id)
     except (ReportRevision.DoesNotExist, ValueError, TypeError) as exc:

@@ -11,7 +11,7 @@ import io
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, Literal
 
 import matplotlib
 
@@ -24,6 +24,7 @@ rcParams["svg.fonttype"] = "none"
 rcParams["svg.hashsalt"] = "tauline"  # stable element ids: the same chart gives the same SVG
 rcParams["font.family"] = "DejaVu Sans"
 
+LegendLoc = Literal["lower right", "upper left", "center right", "upper right", "lower left"]
 PALETTE = ("#1f5f8b", "#c0392b", "#2e8540", "#8e44ad", "#d35400", "#34495e")
 
 
@@ -60,6 +61,7 @@ class Chart:
     y_from_zero: bool = False
     invert_y: bool = False
     x_max: float | None = None
+    legend_loc: LegendLoc = "lower right"
     notes: tuple[str, ...] = field(default_factory=tuple)
 
 
@@ -70,6 +72,18 @@ def _clean(x: Sequence[float | None], y: Sequence[float | None]) -> tuple[list[f
         if a is not None and b is not None and math.isfinite(a) and math.isfinite(b)
     ]
     return [p[0] for p in pairs], [p[1] for p in pairs]
+
+
+MAX_DRAWN_POINTS = 150  # per series in a PDF figure: finer than the printed line can show
+
+
+def _for_print(x: list[float], y: list[float]) -> tuple[list[float], list[float]]:
+    n = len(x)
+    if n <= MAX_DRAWN_POINTS:
+        return x, y
+    step = (n - 1) / (MAX_DRAWN_POINTS - 1)
+    index = sorted({round(i * step) for i in range(MAX_DRAWN_POINTS)})
+    return [x[i] for i in index], [y[i] for i in index]
 
 
 def to_svg(chart: Chart, *, width_in: float = 6.3, height_in: float = 3.2) -> str:
@@ -88,7 +102,7 @@ def to_svg(chart: Chart, *, width_in: float = 6.3, height_in: float = 3.2) -> st
             label=band.name,
         )
     for s in chart.series:
-        x, y = _clean(s.x, s.y)
+        x, y = _for_print(*_clean(s.x, s.y))
         color = PALETTE[s.color_index % len(PALETTE)]
         linestyle = "--" if s.dash else "-"
         if s.mode == "markers":
@@ -122,10 +136,11 @@ def to_svg(chart: Chart, *, width_in: float = 6.3, height_in: float = 3.2) -> st
     if chart.invert_y:
         ax.invert_yaxis()
     if chart.series or chart.bands:
-        ax.legend(fontsize=7, frameon=False, loc="best")
+        # A fixed place: "best" searches every plotted point and dominated the drawing time.
+        ax.legend(fontsize=7, frameon=False, loc=chart.legend_loc)
     for i, note in enumerate(chart.notes):
         ax.annotate(note, xy=(0.01, 0.02 + 0.06 * i), xycoords="axes fraction", fontsize=7)
-    fig.tight_layout()
+    fig.subplots_adjust(left=0.1, right=0.98, top=0.9, bottom=0.15)  # fixed: tight_layout is slow
     out = io.StringIO()
     fig.savefig(out, format="svg", metadata={"Date": None, "Creator": None})
     svg = out.getvalue()
@@ -245,6 +260,7 @@ def vertical_curves_chart(test: dict[str, Any]) -> Chart:
         title=f"{test['reference']}: vertical against horizontal displacement (dilation +)",
         x_label="Horizontal displacement x [mm]",
         y_label="Vertical displacement y [mm]",
+        legend_loc="upper left",
         series=series,
     )
 
@@ -300,6 +316,7 @@ def consolidation_chart(test: dict[str, Any]) -> Chart:
         series=tuple(series),
         invert_y=True,
         x_max=x_max or None,
+        legend_loc="center right",
     )
 
 
@@ -370,6 +387,7 @@ def envelope_chart(test: dict[str, Any]) -> Chart:
     return Chart(
         title=f"{test['reference']}: shear strength envelope",
         x_label="Normal stress σn [kPa]",
+        legend_loc="upper left",
         y_label="Shear stress τ [kPa]",
         series=tuple(series),
         bands=tuple(bands),

@@ -6,11 +6,12 @@ only queries here are the revision's sign-offs and amendment links.
 
 from __future__ import annotations
 
+import base64
 from typing import Any
 
 from django.template.loader import render_to_string
 from django.utils import timezone
-from django.utils.safestring import mark_safe
+from django.utils.html import format_html
 
 from reports.models import ReportRevision, SignOffMeaning
 from reports.rendering.charts import report_charts, to_svg
@@ -24,6 +25,11 @@ CAUTIONS = (
     "This report shall not be reproduced except in full without the written approval of the "
     "laboratory.",
 )
+
+
+def _svg_img(svg: str, title: str) -> str:
+    data = base64.b64encode(svg.encode("utf-8")).decode("ascii")
+    return format_html('<img alt="{}" src="data:image/svg+xml;base64,{}">', title, data)
 
 
 def _signature_rows(revision: ReportRevision, *, issuing: bool) -> list[dict[str, Any]]:
@@ -60,8 +66,9 @@ def render_context(
     for test in content["tests"]:
         svgs = {}
         if charts:
-            # Our own matplotlib output (it escapes all text), so it may sit inline unescaped.
-            svgs = {k: mark_safe(to_svg(c)) for k, c in report_charts(test).items()}
+            # Each chart as its own data: image: WeasyPrint draws an SVG image about 3x faster
+            # than inline SVG, and the charts' element ids cannot clash.
+            svgs = {k: _svg_img(to_svg(c), c.title) for k, c in report_charts(test).items()}
         tests.append({**test, "svg": svgs})
     issue_date = revision.issued_at or (revision.issue_requested_at if issuing else None)
     return {

@@ -1,0 +1,14 @@
+"""The reports API: reports and revisions, PDF download, and sign-off actions (password re-entry).
+
+``register(router)`` is called by ``labsite/api_urls.py``.
+"""
+
+from __future__ import annotations
+
+from rest_framework.routers import BaseRouter
+
+from reports.api.views import ReportRevisionViewSet
+
+
+def register(router: BaseRouter) -> None:
+    router.register("report-revisions", ReportRevisionViewSet, basename="report-revision")

@@ -1,0 +1,139 @@
+"""Report revisions over the API. Thin: scoping by selector, every write through a service.
+
+Sign-off actions (check, approve, issue) need the password again in the body; a race answers
+409 and leaves one result; a missing or wrong password answers 403 and signs nothing.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from django.contrib.auth.models import User
+from django.db.models import QuerySet
+from django.http import FileResponse, Http404
+from rest_framework import exceptions, mixins, serializers, status, viewsets
+from rest_framework.decorators import action
+from rest_framework.request import Request
+from rest_framework.response import Response
+
+from reports import selectors, services
+from reports.models import ReportRevision
+from testing import access
+
+
+class RevisionSerializer(serializers.ModelSerializer[ReportRevision]):
+    report_number = serializers.CharField(source="report.number", read_only=True)
+    project = serializers.CharField(source="report.project.reference", read_only=True)
+    replaces = serializers.UUIDField(source="replaces.public_id", read_only=True, allow_null=True)
+
+    class Meta:
+        model = ReportRevision
+        fields = [
+            "id",
+            "public_id",
+            "report_number",
+            "number",
+            "project",
+            "state",
+            "title",
+            "content_sha256",
+            "pdf_sha256",
+            "issued_at",
+            "replaces",
+            "amendment_reason",
+            "withdrawn_reason",
+        ]
+        read_only_fields = fields
+
+
+class PasswordSerializer(serializers.Serializer[Any]):
+    password = serializers.CharField(required=False, allow_blank=True, write_only=True)
+    content_sha256 = serializers.CharField(required=False, allow_blank=True)
+
+
+class ReasonSerializer(serializers.Serializer[Any]):
+    reason = serializers.CharField(max_length=2000)
+
+
+class ConflictError(exceptions.APIException):
+    status_code = status.HTTP_409_CONFLICT
+    default_detail = "The revision changed meanwhile; reload and try again."
+    default_code = "conflict"
+
+
+def _call(fn: Any, **kwargs: Any) -> ReportRevision:
+    try:
+        return fn(**kwargs)
+    except services.Conflict as exc:
+        raise ConflictError(str(exc)) from exc
+    except services.SignatureRefused as exc:
+        raise exceptions.PermissionDenied(str(exc)) from exc
+
+
+class ReportRevisionViewSet(
+    mixins.ListModelMixin, mixins.RetrieveModelMixin, viewsets.GenericViewSet[ReportRevision]
+):
+    serializer_class = RevisionSerializer
+
+    def get_queryset(self) -> QuerySet[ReportRevision]:
+        return selectors.revisions_for_user(user=self.request.user).order_by("-id")
+
+    def _staff(self) -> User:
+        user = self.request.user
+        if not access.is_lab_staff(user):
+            raise Http404
+        assert isinstance(user, User)
+        return user
+
+    @action(detail=True, methods=["get"])
+    def pdf(self, request: Request, pk: str | None = None) -> FileResponse:
+        revision = self.get_object()
+        if not revision.pdf:
+            raise Http404
+        return FileResponse(
+            revision.pdf.open("rb"),
+            content_type="application/pdf",
+            as_attachment=True,
+            filename=f"{revision.report.number}-rev{revision.number}.pdf",
+        )
+
+    def _sign(self, request: Request, fn: Any, **extra: Any) -> Response:
+        user = self._staff()
+        revision = self.get_object()
+        body = PasswordSerializer(data=request.data)
+        body.is_valid(raise_exception=True)
+        kwargs: dict[str, Any] = {
+            "user": user,
+            "revision": revision,
+            "password": body.validated_data.get("password") or None,
+        }
+        if fn is not services.revision_issue:
+            kwargs["expected_content_sha256"] = body.validated_data.get("content_sha256") or None
+        result = _call(fn, **kwargs)
+        result.refresh_from_db()
+        return Response(RevisionSerializer(result).data, status=status.HTTP_200_OK)
+
+    @action(detail=True, methods=["post"], serializer_class=PasswordSerializer)
+    def check(self, request: Request, pk: str | None = None) -> Response:
+        return self._sign(request, services.revision_check)
+
+    @action(detail=True, methods=["post"], serializer_class=PasswordSerializer)
+    def approve(self, request: Request, pk: str | None = None) -> Response:
+        return self._sign(request, services.revision_approve)
+
+    @action(detail=True, methods=["post"], serializer_class=PasswordSerializer)
+    def issue(self, request: Request, pk: str | None = None) -> Response:
+        return self._sign(request, services.revision_issue)
+
+    @action(detail=True, methods=["post"], serializer_class=ReasonSerializer)
+    def supersede(self, request: Request, pk: str | None = None) -> Response:
+        user = self._staff()
+        body = ReasonSerializer(data=request.data)
+        body.is_valid(raise_exception=True)
+        new = _call(
+            services.revision_supersede,
+            user=user,
+            revision=self.get_object(),
+            reason=body.validated_data["reason"],
+        )
+        return Response(RevisionSerializer(new).data, status=status.HTTP_201_CREATED)

@@ -1,15 +1,20 @@
 """The Celery application. With ``REDIS_URL`` unset, tasks run eagerly in the web process.
 
-Each worker also runs a small heartbeat thread: it marks the worker alive in Redis (read by
-``/healthz``) and relays the outbox, so jobs written while the broker was down are sent when it
-returns, and runs whose worker died are recovered.
+Each worker also runs a heartbeat thread that marks the worker alive in Redis (read by
+``/healthz``), and a child process running ``manage.py relay_outbox --loop``, so jobs written while
+the broker was down are sent when it returns and runs whose worker died are recovered. The relay is
+a process of its own because publishing from a thread inside the worker would share the worker's
+event loop with its consumer.
 """
 
 from __future__ import annotations
 
 import logging
 import os
+import subprocess
+import sys
 import threading
+from pathlib import Path
 from typing import Any
 
 from celery import Celery
@@ -24,6 +29,7 @@ app.autodiscover_tasks()
 logger = logging.getLogger(__name__)
 HEARTBEAT_KEY_PREFIX = "tauline:worker:"
 _stop = threading.Event()
+_relay: list[subprocess.Popen[bytes]] = []
 
 
 @app.task(name="tauline.ping")
@@ -35,9 +41,6 @@ def ping() -> str:
 def _heartbeat_loop(hostname: str) -> None:
     import redis
     from django.conf import settings
-    from django.db import close_old_connections
-
-    from testing.services.computation import relay_once
 
     interval = settings.TAULINE_WORKER_HEARTBEAT_SECONDS
     client = redis.Redis.from_url(settings.REDIS_URL, socket_timeout=2, socket_connect_timeout=2)
@@ -46,13 +49,6 @@ def _heartbeat_loop(hostname: str) -> None:
             client.set(f"{HEARTBEAT_KEY_PREFIX}{hostname}", "alive", ex=interval * 4)
         except redis.RedisError as exc:
             logger.warning("Heartbeat not written: %s", exc)
-        try:
-            close_old_connections()
-            relay_once()
-        except Exception:  # the relay must never take the worker down
-            logger.exception("Outbox relay pass failed")
-        finally:
-            close_old_connections()
         _stop.wait(interval)
 
 
@@ -66,8 +62,21 @@ def _start_heartbeat(sender: Any = None, **kwargs: Any) -> None:
     threading.Thread(
         target=_heartbeat_loop, args=(hostname,), name="tauline-heartbeat", daemon=True
     ).start()
+    manage_py = Path(settings.BASE_DIR) / "manage.py"
+    interval = str(settings.TAULINE_WORKER_HEARTBEAT_SECONDS)
+    _relay.append(
+        subprocess.Popen(
+            [sys.executable, str(manage_py), "relay_outbox", "--loop", "--interval", interval]
+        )
+    )
 
 
 @worker_shutdown.connect
 def _stop_heartbeat(**kwargs: Any) -> None:
     _stop.set()
+    for proc in _relay:
+        proc.terminate()
+        try:
+            proc.wait(timeout=10)
+        except subprocess.TimeoutExpired:
+            proc.kill()

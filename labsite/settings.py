@@ -119,6 +119,12 @@ CELERY_BROKER_TRANSPORT_OPTIONS = {
     "visibility_timeout": 3 * CELERY_TASK_TIME_LIMIT,
     "socket_connect_timeout": 1,
     "socket_timeout": 5,
+    # Publishing gives up after one reconnect attempt instead of retrying forever: the outbox keeps
+    # the job and the relay sends it later.
+    "max_retries": 1,
+    "interval_start": 0,
+    "interval_step": 0.2,
+    "interval_max": 0.5,
 }
 # A claimed run holds a lease this long (renewed as it progresses); a run whose worker died is
 # re-queued by the sweeper once its lease has run out.
@@ -131,6 +137,9 @@ CELERY_BROKER_CONNECTION_TIMEOUT = 1.0
 CELERY_BROKER_CONNECTION_RETRY_ON_STARTUP = True
 # A web request publishes once and gives up fast when the broker is down; the outbox keeps the job.
 CELERY_TASK_PUBLISH_RETRY = False
+CELERY_REDIS_SOCKET_CONNECT_TIMEOUT = 1
+CELERY_REDIS_SOCKET_TIMEOUT = 5
+CELERY_RESULT_EXPIRES = 3600
 # Three queues; a plain `celery worker` consumes all of them, or dedicate workers with -Q computation
 # (reductions and fits) and -Q reports (PDF rendering and signing).
 CELERY_TASK_DEFAULT_QUEUE = "celery"

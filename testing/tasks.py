@@ -10,6 +10,9 @@ from testing.services import computation
 @shared_task(
     bind=True,
     name="tauline.run_computation",
+    # Runs report their state in the database; no result backend round trip, which would also
+    # make publishing wait on a dead broker.
+    ignore_result=True,
     acks_late=True,
     reject_on_worker_lost=True,
     max_retries=5,

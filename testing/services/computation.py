@@ -21,10 +21,12 @@ The road of one run:
 from __future__ import annotations
 
 import logging
+import socket
 import time
 import uuid
 from datetime import timedelta
 from typing import Any
+from urllib.parse import urlsplit
 
 from django.conf import settings
 from django.contrib.auth.models import User
@@ -188,6 +190,19 @@ def stage_include(*, stage: ShearStage, envelope_type: str, user: User) -> None:
 # --- Publishing and the sweeper ----------------------------------------------------------------
 
 
+def broker_reachable(timeout_s: float = 0.5) -> bool:
+    """A TCP connect to the broker, bounded in time. The client library's own reconnect loop can
+    take seconds when the broker is down, which a web request must not wait for."""
+    url = urlsplit(settings.REDIS_URL)
+    try:
+        with socket.create_connection(
+            (url.hostname or "127.0.0.1", url.port or 6379), timeout=timeout_s
+        ):
+            return True
+    except OSError:
+        return False
+
+
 def outbox_publish(*, message_ids: list[int] | None = None, limit: int = 200) -> int:
     """Hand unpublished outbox messages to the broker (in-process when none is configured).
 
@@ -197,27 +212,39 @@ def outbox_publish(*, message_ids: list[int] | None = None, limit: int = 200) ->
     from testing.tasks import run_computation  # tasks import services; import late to avoid a cycle
 
     eager = settings.CELERY_TASK_ALWAYS_EAGER
-    if not eager and time.monotonic() < _broker_down_until:
-        return 0
+    if not eager:
+        if time.monotonic() < _broker_down_until:
+            return 0
+        if not broker_reachable():
+            _broker_down_until = time.monotonic() + _BROKER_BACKOFF_S
+            return 0
     pending = OutboxMessage.objects.filter(published_at__isnull=True).order_by("id")
     if message_ids is not None:
         pending = pending.filter(id__in=message_ids)
+    batch = list(pending.values_list("id", "run_id")[:limit])
+    if not batch:
+        return 0
     published = 0
-    for message_id, run_id in pending.values_list("id", "run_id")[:limit]:
-        try:
-            run_computation.apply_async(args=[run_id], queue="computation")
-        except Exception as exc:  # kombu/redis connection errors: keep the row, try again later
-            _broker_down_until = time.monotonic() + _BROKER_BACKOFF_S
-            OutboxMessage.objects.filter(pk=message_id).update(
-                publish_attempts=F("publish_attempts") + 1,
-                last_error=f"{type(exc).__name__}: {exc}"[:500],
+    # A connection of this call's own: the worker's shared producer pool belongs to its event loop
+    # and must not be used from the heartbeat thread.
+    with run_computation.app.connection_for_write() as connection:
+        for message_id, run_id in batch:
+            try:
+                run_computation.apply_async(
+                    args=[run_id], queue="computation", connection=connection
+                )
+            except Exception as exc:  # kombu/redis connection errors: keep the row, try again later
+                _broker_down_until = time.monotonic() + _BROKER_BACKOFF_S
+                OutboxMessage.objects.filter(pk=message_id).update(
+                    publish_attempts=F("publish_attempts") + 1,
+                    last_error=f"{type(exc).__name__}: {exc}"[:500],
+                )
+                logger.warning("Broker unavailable; run %s stays in the outbox: %s", run_id, exc)
+                break
+            OutboxMessage.objects.filter(pk=message_id, published_at__isnull=True).update(
+                published_at=timezone.now(), publish_attempts=F("publish_attempts") + 1
             )
-            logger.warning("Broker unavailable; run %s stays in the outbox: %s", run_id, exc)
-            break
-        OutboxMessage.objects.filter(pk=message_id, published_at__isnull=True).update(
-            published_at=timezone.now(), publish_attempts=F("publish_attempts") + 1
-        )
-        published += 1
+            published += 1
     return published
 
 

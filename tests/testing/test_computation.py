@@ -132,8 +132,8 @@ def test_a_rolled_back_request_publishes_nothing(demo: dict[str, Any]) -> None:
     with demo["capture"](execute=True) as callbacks, pytest.raises(RuntimeError):
         request_then_cancel()
     assert callbacks == []
-    assert not ComputationRun.objects.exists()
-    assert not OutboxMessage.objects.exists()
+    assert not ComputationRun.objects.filter(stage=stage).exists()
+    assert not OutboxMessage.objects.filter(run__stage=stage).exists()
 
 
 def test_requests_for_the_same_subject_share_one_queued_run(demo: dict[str, Any]) -> None:
@@ -245,8 +245,9 @@ def test_broker_down_keeps_the_outbox_row_and_answers_fast(
     assert "Connection refused" in message.last_error
     computation._broker_down_until = 0.0
     with mock.patch("testing.tasks.run_computation.apply_async") as publish:
-        assert computation.outbox_publish() == 1
-    publish.assert_called_once_with(args=[run.pk], queue="computation")
+        assert computation.outbox_publish(message_ids=[message.pk]) == 1
+    publish.assert_called_once()
+    assert publish.call_args.kwargs["args"] == [run.pk]
 
 
 def test_exclusion_needs_a_reason_and_refits_without_the_stage(demo: dict[str, Any]) -> None:
@@ -334,9 +335,45 @@ def test_a_fourth_delivery_does_not_run_and_records_why(demo: dict[str, Any]) ->
     with mock.patch.object(computation, "outbox_publish"):
         run = computation.stage_reduction_request(stage=stage, user=demo["technician"], reason="a")
     past = timezone.now() - timedelta(seconds=1)
-    ComputationRun.objects.filter(pk=run.pk).update(state=RunState.RUNNING, attempts=3, lease_expires_at=past)
+    ComputationRun.objects.filter(pk=run.pk).update(
+        state=RunState.RUNNING, attempts=3, lease_expires_at=past
+    )
     assert computation.run_execute(run_id=run.pk) == "failed"
     run.refresh_from_db()
     assert (run.state, run.attempts) == (RunState.FAILED, 3)
     assert "stopped 3 times" in run.error
     assert not StageResult.objects.filter(run=run).exists()
+
+
+def test_publishing_resumes_after_the_backoff_once_the_broker_answers(
+    demo: dict[str, Any], settings: Any
+) -> None:
+    settings.CELERY_TASK_ALWAYS_EAGER = False
+    stage = demo["sand"].stages.first()
+    computation._broker_down_until = 0.0
+    clock = [1000.0]
+    with (
+        mock.patch.object(computation.time, "monotonic", side_effect=lambda: clock[0]),
+        mock.patch.object(computation, "broker_reachable", return_value=False),
+        demo["capture"](execute=True),
+    ):
+        run = computation.stage_reduction_request(stage=stage, user=demo["technician"], reason="a")
+        for _ in range(30):  # the relay keeps calling while the broker is down
+            clock[0] += 1.0
+            assert computation.outbox_publish() == 0
+    # The broker is back: the relay keeps calling every second and must publish within one backoff.
+    published_after = None
+    with (
+        mock.patch.object(computation.time, "monotonic", side_effect=lambda: clock[0]),
+        mock.patch.object(computation, "broker_reachable", return_value=True),
+        mock.patch("testing.tasks.run_computation.apply_async") as publish,
+    ):
+        for second in range(1, 30):
+            clock[0] += 1.0
+            if computation.outbox_publish(
+                message_ids=[m.pk for m in OutboxMessage.objects.filter(run=run)]
+            ):
+                published_after = second
+                break
+    assert published_after is not None and published_after <= computation._BROKER_BACKOFF_S
+    publish.assert_called_once()

@@ -6,6 +6,7 @@ import time
 from typing import Any
 
 from django.core.management.base import BaseCommand, CommandParser
+from django.db import DatabaseError, close_old_connections
 
 from testing.services.computation import relay_once
 
@@ -21,8 +22,16 @@ class Command(BaseCommand):
 
     def handle(self, *args: Any, loop: bool = False, interval: float = 5.0, **options: Any) -> None:
         while True:
-            counts = relay_once()
-            self.stdout.write(", ".join(f"{k} {v}" for k, v in counts.items()))
+            try:
+                counts = relay_once()
+            except DatabaseError as exc:  # keep relaying through a database restart
+                if not loop:
+                    raise
+                self.stderr.write(f"relay pass failed: {exc}")
+                close_old_connections()
+                counts = {}
+            if not loop or any(counts.values()):
+                self.stdout.write(", ".join(f"{k} {v}" for k, v in counts.items()))
             if not loop:
                 return
             time.sleep(interval)

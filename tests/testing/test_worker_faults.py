@@ -98,7 +98,7 @@ class Rig:
             status = self.driver("status")
             return not status["per_state"].get("queued") and not status["per_state"].get("running")
 
-        wait_for("all runs finished", done, 180, self.procs.logs + [_StatusNote(lambda: status)])  # type: ignore[list-item]
+        wait_for("all runs finished", done, 180, [*self.procs.logs, _StatusNote(lambda: status)])  # type: ignore[list-item]
         return status
 
 
@@ -213,17 +213,22 @@ def test_broker_down_for_30_s_answers_fast_and_catches_up(rig: Rig) -> None:
     rig.redis.send_signal(signal.SIGTERM)  # our own redis-server only
     rig.redis.wait(timeout=10)
     down_until = time.monotonic() + 30
-    slowest, health_states = 0.0, set()
+    health_states: set[str] = set()
     submitted = rig.driver("submit")
-    slowest = max(slowest, submitted["slowest_request_s"])
+    slowest_submit, slowest_health = submitted["slowest_request_s"], 0.0
     while time.monotonic() < down_until:
         started = time.monotonic()
         health_states.add(_status_of(health))
-        slowest = max(slowest, time.monotonic() - started)
+        slowest_health = max(slowest_health, time.monotonic() - started)
         time.sleep(1.0)
     rig.redis = start_redis(rig.procs, rig.tmp, rig.redis_port, name="redis-again")
 
-    assert slowest < 2.0, f"slowest request {slowest:.2f} s while the broker was down"
+    assert slowest_submit < 2.0, (
+        f"slowest submission {slowest_submit:.2f} s while the broker was down"
+    )
+    assert slowest_health < 2.0, (
+        f"slowest /healthz {slowest_health:.2f} s while the broker was down"
+    )
     assert health_states == {"degraded"}
     status = rig.settled()
     assert status["failed"] == []

@@ -16,10 +16,15 @@ def _broker_and_workers() -> tuple[str, str]:
     if not settings.REDIS_URL:
         return "in-process", "in-process"
     import redis
+    from redis.backoff import NoBackoff
+    from redis.retry import Retry
 
     from labsite.celery import HEARTBEAT_KEY_PREFIX
 
-    client = redis.Redis.from_url(settings.REDIS_URL, socket_timeout=1, socket_connect_timeout=1)
+    # No client-side retries: a dead broker must make this answer fast, not slowly.
+    client = redis.Redis.from_url(
+        settings.REDIS_URL, socket_timeout=1, socket_connect_timeout=1, retry=Retry(NoBackoff(), 0)
+    )
     try:
         client.ping()
         alive = next(iter(client.scan_iter(match=f"{HEARTBEAT_KEY_PREFIX}*", count=100)), None)

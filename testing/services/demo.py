@@ -368,12 +368,14 @@ def _specimen_masses(
     return round(dry_g * (1 + water_content), 2), round(dry_g, 2)
 
 
-def _sand_set(*, project: Project, sample: Sample, user: User, now: datetime) -> DirectShearTest:
+def _sand_set(
+    *, project: Project, sample: Sample, user: User, now: datetime, reference: str = "DS-01"
+) -> DirectShearTest:
     params = demo_parameters()["dense_sand"]
     test = shear_test_create(
         user=user,
         project=project,
-        reference="DS-01",
+        reference=reference,
         method="bs-1377-7",
         apparatus="SB-2 (60 mm)",
         box_length_mm=_BOX_MM,

@@ -24,7 +24,8 @@ from testing.analysis.profiles import (
 from testing.analysis.rate import max_rate
 from testing.models import ShearStage
 from testing.models.direct_shear import MethodProfile as MethodChoice
-from testing.services.stage_inputs import StageInputs, box_geometry
+from testing.services.equipment import stage_calibration_flags
+from testing.services.stage_inputs import StageInputs, box_geometry, stage_test_date
 
 PROFILE_FOR_METHOD: dict[str, MethodProfile] = {
     MethodChoice.ASTM_D3080: ASTM_D3080_23,
@@ -71,6 +72,7 @@ def stage_context_build(stage: ShearStage, inputs: StageInputs) -> StageContext:
     }
     _consolidation(context, inputs)
     _phase(context, stage, inputs)
+    context.flags.extend(stage_calibration_flags(stage, stage_test_date(stage)))
     if specimen.max_particle_size_mm:
         box = box_geometry(test)
         flag = analysis.check_particle_size(

@@ -7,6 +7,8 @@ stored result say exactly which inputs made it.
 
 from __future__ import annotations
 
+import dataclasses
+import datetime as dt
 import hashlib
 import json
 from dataclasses import dataclass, field
@@ -19,12 +21,14 @@ from testing import analysis
 from testing.models import (
     ConsolidationReading,
     DirectShearTest,
-    ForceUnit,
     NormalLoading,
     ShearReading,
     ShearStage,
 )
 from testing.models.direct_shear import AreaModel, BoxShape
+from testing.services.equipment import stage_force_calibration
+
+Calibration = analysis.LinearCalibration | analysis.PolynomialCalibration
 
 
 @dataclass(frozen=True)
@@ -39,7 +43,7 @@ class StageInputs:
     force_reading: NDArray[np.float64]
     consolidation_time_min: NDArray[np.float64]
     consolidation_settlement_mm: NDArray[np.float64]
-    calibration: analysis.LinearCalibration | analysis.PolynomialCalibration = field(repr=False)
+    calibration: Calibration = field(repr=False)
 
     def digest(self) -> str:
         """sha256 over the canonical settings JSON and the raw bytes of every array."""
@@ -79,15 +83,18 @@ def stage_normal_force_n(stage: ShearStage, box: analysis.BoxGeometry) -> float:
     )
 
 
-def stage_calibration(stage: ShearStage) -> analysis.LinearCalibration:
-    """The force calibration recorded on the stage (ring constant and zero, or a load cell in N)."""
-    device = "ring" if stage.force_unit == ForceUnit.DIVISIONS else "load cell"
-    return analysis.LinearCalibration(
-        factor_n_per_unit=stage.force_factor_n_per_unit,
-        zero_reading=stage.force_zero_reading,
-        unit=stage.force_unit,
-        device=device,
-    )
+def stage_test_date(stage: ShearStage) -> dt.date:
+    """The date the stage was tested (shearing start), else consolidation start, else the request date."""
+    moment = stage.shear_started_at or stage.consolidation_started_at
+    return moment.date() if moment is not None else stage.test.requested_on
+
+
+def _calibration_fingerprint(calibration: Calibration) -> dict[str, Any]:
+    fields = dataclasses.asdict(calibration)
+    return {
+        "type": type(calibration).__name__,
+        **{k: v for k, v in fields.items() if k not in ("unit", "device")},
+    }
 
 
 def stage_inputs_load(stage: ShearStage) -> StageInputs:
@@ -95,7 +102,7 @@ def stage_inputs_load(stage: ShearStage) -> StageInputs:
     test = stage.test
     specimen = stage.specimen
     box = box_geometry(test)
-    calibration = stage_calibration(stage)
+    calibration = stage_force_calibration(stage)
     rows = np.array(
         ShearReading.objects.filter(stage=stage)
         .order_by("traverse", "seq")
@@ -114,11 +121,9 @@ def stage_inputs_load(stage: ShearStage) -> StageInputs:
         "method": test.method,
         "method_edition": test.method_edition,
         "normal_force_n": stage_normal_force_n(stage, box),
-        "calibration": {
-            "kind": "linear",
-            "factor_n_per_unit": calibration.factor_n_per_unit,
-            "zero_reading": calibration.zero_reading,
-        },
+        "calibration": _calibration_fingerprint(calibration),
+        "calibration_record_id": stage.force_calibration_id,
+        "test_date": stage_test_date(stage).isoformat(),
         "specimen": {
             "height_mm": specimen.height_mm,
             "initial_mass_g": specimen.initial_mass_g,

@@ -377,3 +377,13 @@ def test_publishing_resumes_after_the_backoff_once_the_broker_answers(
                 break
     assert published_after is not None and published_after <= computation._BROKER_BACKOFF_S
     publish.assert_called_once()
+
+
+def test_expired_calibration_is_flagged_on_the_stage_result(demo: dict[str, Any]) -> None:
+    """The demo's DS-03 load cell was calibrated with a due date before the test date (invented
+    scenario); its stage results must say so, as an error that blocks approval."""
+    ds03 = DirectShearTest.objects.get(reference="DS-03")
+    _recompute(demo, ds03)
+    for result in selectors.latest_stage_results(test=ds03).values():
+        codes = {f["code"]: f["severity"] for f in result.flags}
+        assert codes.get("CALIBRATION_EXPIRED") == "error", result.flags

@@ -56,6 +56,8 @@ INSTALLED_APPS = [
     "drf_spectacular_sidecar",
     "testing.apps.TestingConfig",
     "reports.apps.ReportsConfig",
+    "axes",
+    "labsite.security.apps.SecurityConfig",
 ]
 
 MIDDLEWARE = [
@@ -70,6 +72,10 @@ MIDDLEWARE = [
     "django.contrib.auth.middleware.AuthenticationMiddleware",
     "django.contrib.messages.middleware.MessageMiddleware",
     "django.middleware.clickjacking.XFrameOptionsMiddleware",
+    # Signs out idle and over-long sessions (needs request.user).
+    "labsite.security.sessions.SessionLimitsMiddleware",
+    # django-axes: turns a locked-out sign-in into the lockout page; keep it last.
+    "axes.middleware.AxesMiddleware",
 ]
 
 ROOT_URLCONF = "labsite.urls"
@@ -166,6 +172,35 @@ AUTH_PASSWORD_VALIDATORS = [
     {"NAME": "django.contrib.auth.password_validation.CommonPasswordValidator"},
     {"NAME": "django.contrib.auth.password_validation.NumericPasswordValidator"},
 ]
+# django-axes checks the lockout first; Django's backend checks the password.
+AUTHENTICATION_BACKENDS = [
+    "labsite.security.backends.LockoutBackend",
+    "django.contrib.auth.backends.ModelBackend",
+]
+# Sign-in lockout per user name (known or not, so a lockout reveals nothing) and, separately, per
+# client address (one address trying many names): the attempt that reaches the limit locks; the
+# correct password is refused while locked. Every failure is kept in the access-failure log and
+# every sign-in in the access log.
+AXES_FAILURE_LIMIT = env_int("TAULINE_LOGIN_FAILURE_LIMIT", 10, minimum=1)
+AXES_LOCK_OUT_AT_FAILURE = True
+AXES_LOCKOUT_PARAMETERS = ["username", "ip_address"]
+TAULINE_LOGIN_LOCKOUT_MINUTES = env_int("TAULINE_LOGIN_LOCKOUT_MINUTES", 30, minimum=1)
+AXES_COOLOFF_TIME = timedelta(minutes=TAULINE_LOGIN_LOCKOUT_MINUTES)
+AXES_RESET_ON_SUCCESS = True
+AXES_ENABLE_ACCESS_FAILURE_LOG = True
+AXES_LOCKOUT_CALLABLE = "labsite.security.lockout.lockout_response"
+# The address logged with each attempt: the socket's, or with TAULINE_PROXY_COUNT reverse proxies
+# in front, the one they put in X-Forwarded-For (never trusted without a proxy: it can be forged).
+_PROXY_COUNT = env_int("TAULINE_PROXY_COUNT", 0, minimum=0)
+AXES_IPWARE_PROXY_COUNT = _PROXY_COUNT or None
+AXES_IPWARE_META_PRECEDENCE_ORDER = (
+    ["HTTP_X_FORWARDED_FOR", "REMOTE_ADDR"] if _PROXY_COUNT else ["REMOTE_ADDR"]
+)
+# Session limits: signed out after this long without a request, and in any case this long after
+# signing in (the cookie expires then too).
+TAULINE_SESSION_IDLE_MINUTES = env_int("TAULINE_SESSION_IDLE_MINUTES", 60, minimum=1)
+TAULINE_SESSION_ABSOLUTE_HOURS = env_int("TAULINE_SESSION_ABSOLUTE_HOURS", 12, minimum=1)
+SESSION_COOKIE_AGE = TAULINE_SESSION_ABSOLUTE_HOURS * 3600
 LOGIN_URL = "login"
 LOGIN_REDIRECT_URL = "home"
 LOGOUT_REDIRECT_URL = "login"
@@ -279,6 +314,12 @@ if not DEBUG:
     CSRF_COOKIE_SECURE = SESSION_COOKIE_SECURE
     SECURE_SSL_REDIRECT = env_bool("DJANGO_SECURE_SSL_REDIRECT", False)
     SECURE_HSTS_SECONDS = env_int("DJANGO_HSTS_SECONDS", 0, minimum=0)
+    SECURE_HSTS_INCLUDE_SUBDOMAINS = env_bool("DJANGO_HSTS_INCLUDE_SUBDOMAINS", True)
+    SECURE_HSTS_PRELOAD = env_bool("DJANGO_HSTS_PRELOAD", False)
+    if not SECURE_HSTS_PRELOAD:
+        # Asking browsers to preload HSTS for the whole domain is the domain owner's decision,
+        # not the app's; off unless DJANGO_HSTS_PRELOAD=1, so its deploy warning is silenced.
+        SILENCED_SYSTEM_CHECKS = ["security.W021"]
     SECURE_PROXY_SSL_HEADER = ("HTTP_X_FORWARDED_PROTO", "https")
 
 # --- Lab ---------------------------------------------------------------------------------------

@@ -15,7 +15,7 @@ class LockoutBackend(AxesStandaloneBackend):
     out by address or recorded against a request, so it is left to the password backend alone.
     """
 
-    def authenticate(  # type: ignore[override]
+    def authenticate(
         self,
         request: HttpRequest | None,
         username: str | None = None,

@@ -192,4 +192,5 @@ class ShearReadingAdmin(admin.ModelAdmin[ShearReading]):
     list_select_related = ("stage__test__project",)
 
 
-import testing.admin_equipment  # noqa: E402, F401  (equipment register and imports)
+# Imported for their registrations: the equipment register and imports; runs and results (read-only).
+from testing import admin_equipment, admin_results  # noqa: E402, F401

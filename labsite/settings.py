@@ -57,6 +57,8 @@ INSTALLED_APPS = [
     "testing.apps.TestingConfig",
     "reports.apps.ReportsConfig",
     "axes",
+    # Field-level history of lab records (who, when, before/after, reason).
+    "simple_history",
     "labsite.security.apps.SecurityConfig",
 ]
 
@@ -74,6 +76,8 @@ MIDDLEWARE = [
     "django.middleware.clickjacking.XFrameOptionsMiddleware",
     # Signs out idle and over-long sessions (needs request.user).
     "labsite.security.sessions.SessionLimitsMiddleware",
+    # Lets model history record the signed-in user of the request.
+    "simple_history.middleware.HistoryRequestMiddleware",
     # django-axes: turns a locked-out sign-in into the lockout page; keep it last.
     "axes.middleware.AxesMiddleware",
 ]
@@ -210,6 +214,10 @@ LANGUAGE_CODE = "en-gb"
 TIME_ZONE = env_str("TAULINE_TIME_ZONE", "UTC")
 USE_I18N = True
 USE_TZ = True
+
+# --- Audit trail -------------------------------------------------------------------------------
+# Change reasons of any length (the default column is 100 characters).
+SIMPLE_HISTORY_HISTORY_CHANGE_REASON_USE_TEXT_FIELD = True
 
 # --- Files ------------------------------------------------------------------------------------
 STATIC_URL = "static/"

@@ -1,5 +1,6 @@
 """Lab records, one module per aggregate; explicit re-exports keep imports stable."""
 
+from testing.models.audit import ReadingsChange, ReadingsSource
 from testing.models.clients import Borehole, Organisation, Project
 from testing.models.direct_shear import (
     AreaModel,
@@ -69,6 +70,8 @@ __all__ = [
     "Preparation",
     "Project",
     "ReadingImport",
+    "ReadingsChange",
+    "ReadingsSource",
     "Role",
     "RunKind",
     "RunState",

@@ -6,6 +6,8 @@ from django.db import models
 from django.db.models import Q
 from django.db.models.functions import Lower
 
+from testing.models.audit import AuditedHistory
+
 
 class Organisation(models.Model):
     """A client organisation. Its users see their own organisation's issued work and nothing else."""
@@ -17,6 +19,8 @@ class Organisation(models.Model):
     contact_email = models.EmailField(blank=True)
     is_active = models.BooleanField(default=True)
     created_at = models.DateTimeField(auto_now_add=True)
+
+    history = AuditedHistory()
 
     class Meta:
         ordering = ["name"]
@@ -40,6 +44,8 @@ class Project(models.Model):
     client_engineer = models.CharField(max_length=120, blank=True)
     created_at = models.DateTimeField(auto_now_add=True)
 
+    history = AuditedHistory()
+
     class Meta:
         ordering = ["-created_at", "reference"]
         constraints = [
@@ -62,6 +68,8 @@ class Borehole(models.Model):
         max_digits=7, decimal_places=2, null=True, blank=True, help_text="Final depth [m]."
     )
     drilled_on = models.DateField(null=True, blank=True)
+
+    history = AuditedHistory()
 
     class Meta:
         ordering = ["project", "reference"]

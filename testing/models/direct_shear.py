@@ -6,6 +6,8 @@ from django.conf import settings
 from django.db import models
 from django.db.models import Q
 
+from testing.models.audit import AuditedHistory
+
 
 class MethodProfile(models.TextChoices):
     ASTM_D3080 = "astm-d3080", "ASTM D3080/D3080M"
@@ -91,6 +93,8 @@ class DirectShearTest(models.Model):
         related_name="shear_tests",
         help_text="The machine from the equipment register (the text id above stays as typed).",
     )
+
+    history = AuditedHistory()
 
     class Meta:
         ordering = ["project", "reference"]
@@ -186,6 +190,8 @@ class ShearStage(models.Model):
         help_text="Force calibration in force on the test date; without one the factor and zero "
         "reading above apply.",
     )
+
+    history = AuditedHistory()
 
     class Meta:
         ordering = ["test", "stage_number"]

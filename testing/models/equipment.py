@@ -13,6 +13,7 @@ from django.db import models
 from django.db.models import F, Q
 
 from testing.analysis import LinearCalibration, PolynomialCalibration
+from testing.models.audit import AuditedHistory
 
 
 class ApparatusBoxShape(models.TextChoices):
@@ -45,6 +46,8 @@ class Apparatus(models.Model):
     )
     verification_due_on = models.DateField(null=True, blank=True)
     is_active = models.BooleanField(default=True)
+
+    history = AuditedHistory()
 
     class Meta:
         ordering = ["reference"]
@@ -107,6 +110,8 @@ class ForceDevice(models.Model):
     )
     is_active = models.BooleanField(default=True)
 
+    history = AuditedHistory()
+
     class Meta:
         ordering = ["reference"]
         constraints = [
@@ -155,6 +160,8 @@ class CalibrationRecord(models.Model):
         settings.AUTH_USER_MODEL, on_delete=models.PROTECT, null=True, blank=True, related_name="+"
     )
     created_at = models.DateTimeField(auto_now_add=True)
+
+    history = AuditedHistory()
 
     class Meta:
         ordering = ["device", "-calibrated_on", "-id"]
@@ -234,6 +241,8 @@ class DisplacementGauge(models.Model):
     due_on = models.DateField(null=True, blank=True)
     certificate_number = models.CharField(max_length=80, blank=True)
     is_active = models.BooleanField(default=True)
+
+    history = AuditedHistory()
 
     class Meta:
         ordering = ["reference"]

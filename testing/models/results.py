@@ -11,6 +11,8 @@ from django.conf import settings
 from django.db import models
 from django.db.models import Q
 
+from testing.models.audit import AuditedHistory
+
 
 class RunKind(models.TextChoices):
     STAGE_REDUCTION = "stage_reduction", "Stage reduction"
@@ -134,6 +136,8 @@ class StageExclusion(models.Model):
         settings.AUTH_USER_MODEL, on_delete=models.PROTECT, related_name="+"
     )
     excluded_at = models.DateTimeField(auto_now_add=True)
+
+    history = AuditedHistory()
 
     class Meta:
         constraints = [

@@ -12,6 +12,8 @@ from django.conf import settings
 from django.db import models
 from django.db.models import F, Q
 
+from testing.models.audit import AuditedHistory
+
 
 class SampleType(models.TextChoices):
     # Codes as used in AGS4 SAMP_TYPE abbreviations.
@@ -95,6 +97,9 @@ class Sample(models.Model):
         max_length=12, choices=SampleStatus.choices, default=SampleStatus.RECEIVED, editable=False
     )
     status_changed_at = models.DateTimeField(null=True, blank=True, editable=False)
+
+    # Status moves are recorded as SampleEvent rows by the lifecycle service, not here.
+    history = AuditedHistory(excluded_fields=["status", "status_changed_at"])
 
     class Meta:
         ordering = ["borehole", "depth_top_m", "reference"]

@@ -5,6 +5,8 @@ from __future__ import annotations
 from django.db import models
 from django.db.models import Q
 
+from testing.models.audit import AuditedHistory
+
 
 class Preparation(models.TextChoices):
     UNDISTURBED = "undisturbed", "Undisturbed (trimmed)"
@@ -58,6 +60,8 @@ class Specimen(models.Model):
     particle_density_assumed = models.BooleanField(
         default=True, help_text="True when the particle density is assumed rather than measured."
     )
+
+    history = AuditedHistory()
 
     class Meta:
         ordering = ["sample", "reference"]

@@ -46,6 +46,7 @@ from testing.models import (
     StageExclusion,
     StageResult,
 )
+from testing.models.audit import acting
 from testing.services.errors import NotAllowed, ServiceError
 
 logger = logging.getLogger(__name__)
@@ -153,7 +154,7 @@ def stage_exclude(
         raise ServiceError("Give the reason for leaving this stage out of the envelope.")
     if stage.test.released_at is not None:
         raise ServiceError("This test set has been reported; its stage selection cannot change.")
-    with transaction.atomic():
+    with transaction.atomic(), acting(user, reason):
         exclusion, _ = StageExclusion.objects.update_or_create(
             stage=stage,
             envelope_type=EnvelopeType(envelope_type),
@@ -174,7 +175,7 @@ def stage_include(*, stage: ShearStage, envelope_type: str, user: User) -> None:
         raise NotAllowed("Only technicians, checkers and the lab manager can include a stage.")
     if stage.test.released_at is not None:
         raise ServiceError("This test set has been reported; its stage selection cannot change.")
-    with transaction.atomic():
+    with transaction.atomic(), acting(user, "included again"):
         deleted, _ = StageExclusion.objects.filter(
             stage=stage, envelope_type=envelope_type
         ).delete()

@@ -28,6 +28,7 @@ from testing.models import (
     ShearReading,
     ShearStage,
 )
+from testing.models.audit import acting
 from testing.services.errors import NotAllowed, ServiceError
 
 
@@ -36,32 +37,33 @@ def _require_manager(user: User) -> None:
         raise NotAllowed("Only the lab manager can change the equipment register.")
 
 
-def _save(obj: Any) -> None:
+def _save(obj: Any, user: User) -> None:
     try:
         obj.full_clean()
     except ValidationError as exc:
         raise ServiceError("; ".join(exc.messages)) from exc
-    obj.save()
+    with acting(user):
+        obj.save()
 
 
 def apparatus_create(*, user: User, reference: str, **fields: Any) -> Apparatus:
     _require_manager(user)
     apparatus = Apparatus(reference=reference, **fields)
-    _save(apparatus)
+    _save(apparatus, user)
     return apparatus
 
 
 def force_device_create(*, user: User, reference: str, kind: str, **fields: Any) -> ForceDevice:
     _require_manager(user)
     device = ForceDevice(reference=reference, kind=kind, **fields)
-    _save(device)
+    _save(device, user)
     return device
 
 
 def gauge_create(*, user: User, reference: str, **fields: Any) -> DisplacementGauge:
     _require_manager(user)
     gauge = DisplacementGauge(reference=reference, **fields)
-    _save(gauge)
+    _save(gauge, user)
     return gauge
 
 
@@ -79,7 +81,7 @@ def calibration_record_create(
         record.as_analysis()
     except (AnalysisError, TypeError, ValueError) as exc:
         raise ServiceError(f"Calibration {certificate_number}: {exc}") from exc
-    _save(record)
+    _save(record, user)
     return record
 
 
@@ -120,7 +122,7 @@ def stage_calibration_link(
         raise ServiceError(
             f"{device.reference} has no calibration dated on or before {when.isoformat()}."
         )
-    with transaction.atomic():
+    with transaction.atomic(), acting(user, f"force calibration {record.certificate_number}"):
         stage.force_calibration = record
         stage.save(update_fields=["force_calibration"])
         from testing.services.imports import request_stage_reduction

@@ -48,7 +48,9 @@ from testing.models import (
     ShearReading,
     ShearStage,
 )
+from testing.models.audit import ReadingsSource, acting
 from testing.services.errors import NotAllowed, ServiceError
+from testing.services.readings_audit import parsed_state, readings_change_record, readings_state
 
 log = logging.getLogger(__name__)
 
@@ -195,7 +197,12 @@ def stage_readings_preview(
 
 
 def stage_readings_import(
-    *, user: User, stage: ShearStage, upload: Upload, layout: ImportLayout | None = None
+    *,
+    user: User,
+    stage: ShearStage,
+    upload: Upload,
+    layout: ImportLayout | None = None,
+    reason: str = "",
 ) -> ReadingImport:
     """Import one logger file into a stage. Returns the import record; look at its ``state``:
 
@@ -277,6 +284,7 @@ def stage_readings_import(
     try:
         with transaction.atomic():
             locked = ShearStage.objects.select_for_update().get(pk=stage.pk)
+            before = readings_state(locked.pk)
             replaced = _replace_readings(locked, parsed)
             superseded = ReadingImport.objects.filter(
                 stage=stage, state=ImportState.SUCCEEDED
@@ -295,6 +303,15 @@ def stage_readings_import(
                     "replaced_rows",
                     "finished_at",
                 ]
+            )
+            readings_change_record(
+                stage=locked,
+                user=user,
+                source=ReadingsSource.IMPORTED,
+                before=before,
+                after=parsed_state(before, parsed),
+                reason=reason,
+                reading_import=record,
             )
             request_stage_reduction(stage=locked, user=user, reason="readings imported")
     except DatabaseError as exc:
@@ -513,7 +530,7 @@ def validate_manual_rows(stage: ShearStage, rows: Sequence[Mapping[str, object]]
 
 
 def stage_readings_enter(
-    *, user: User, stage: ShearStage, rows: Sequence[Mapping[str, object]]
+    *, user: User, stage: ShearStage, rows: Sequence[Mapping[str, object]], reason: str = ""
 ) -> tuple[int, int]:
     """Save readings typed on the entry grid, replacing the phases entered; returns the counts
     (consolidation, shear). Raises :class:`ReadingsRejected` listing every bad row (nothing saved)."""
@@ -524,7 +541,16 @@ def stage_readings_enter(
         raise ReadingsRejected(parsed.error_summary, parsed.errors)
     with transaction.atomic():
         locked = ShearStage.objects.select_for_update().get(pk=stage.pk)
+        before = readings_state(locked.pk)
         _replace_readings(locked, parsed)
+        readings_change_record(
+            stage=locked,
+            user=user,
+            source=ReadingsSource.ENTERED,
+            before=before,
+            after=parsed_state(before, parsed),
+            reason=reason,
+        )
         request_stage_reduction(stage=locked, user=user, reason="readings entered by hand")
     return int(parsed.consolidation_elapsed_min.size), int(parsed.shear_elapsed_min.size)
 
@@ -602,7 +628,7 @@ def ags_import_apply(*, user: User, project: Any, data: bytes, filename: str) ->
     if not plan.ok:
         raise ServiceError("The AGS4 file was not imported:\n" + plan.report())
     digest = hashlib.sha256(data).hexdigest()
-    with transaction.atomic():
+    with transaction.atomic(), acting(user, f"AGS4 import of {display_name(filename)}"):
         for fields in plan.new_boreholes:
             Borehole.objects.create(project=project, **fields)
         boreholes = {b.reference: b for b in Borehole.objects.filter(project=project)}

@@ -48,7 +48,8 @@ def sample_transition(
             )
         locked.status = target
         locked.status_changed_at = moment
-        locked.save(update_fields=["status", "status_changed_at"])
+        # An update, not save(): the move is recorded by its SampleEvent, not as field history.
+        Sample.objects.filter(pk=locked.pk).update(status=target, status_changed_at=moment)
         event = SampleEvent.objects.create(
             sample=locked, at=moment, by=user, from_status=current, to_status=target, note=note
         )

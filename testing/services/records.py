@@ -21,6 +21,7 @@ from testing.models import (
     SampleStatus,
     Specimen,
 )
+from testing.models.audit import acting
 from testing.services.errors import NotAllowed
 
 
@@ -34,7 +35,8 @@ def organisation_create(*, user: User, name: str, code: str, **fields: Any) -> O
         raise NotAllowed("Only the lab manager can register a client organisation.")
     organisation = Organisation(name=name, code=code, **fields)
     organisation.full_clean()
-    organisation.save()
+    with acting(user):
+        organisation.save()
     return organisation
 
 
@@ -45,7 +47,8 @@ def project_create(
         raise NotAllowed("Only the lab manager can open a project.")
     project = Project(organisation=organisation, reference=reference, name=name, **fields)
     project.full_clean()
-    project.save()
+    with acting(user):
+        project.save()
     return project
 
 
@@ -53,7 +56,8 @@ def borehole_create(*, user: User, project: Project, reference: str, **fields: A
     _require_records_role(user)
     borehole = Borehole(project=project, reference=reference, **fields)
     borehole.full_clean()
-    borehole.save()
+    with acting(user):
+        borehole.save()
     return borehole
 
 
@@ -92,7 +96,7 @@ def sample_receive(
         **fields,
     )
     sample.full_clean()
-    with transaction.atomic():
+    with transaction.atomic(), acting(user):
         sample.save()
         SampleEvent.objects.create(
             sample=sample,
@@ -109,5 +113,6 @@ def specimen_create(*, user: User, sample: Sample, reference: str, **fields: Any
     _require_records_role(user)
     specimen = Specimen(sample=sample, reference=reference, **fields)
     specimen.full_clean()
-    specimen.save()
+    with acting(user):
+        specimen.save()
     return specimen

@@ -17,8 +17,10 @@ from testing.models import (
     ShearStage,
     Specimen,
 )
+from testing.models.audit import ReadingsSource, acting
 from testing.models.direct_shear import DEFAULT_EDITIONS, MethodProfile
 from testing.services.errors import NotAllowed, ServiceError
+from testing.services.readings_audit import readings_change_record, readings_state, rows_state
 
 
 def _require_technician(user: User) -> None:
@@ -37,7 +39,8 @@ def shear_test_create(
         project=project, reference=reference, method=method, created_by=user, **fields
     )
     test.full_clean()
-    test.save()
+    with acting(user):
+        test.save()
     return test
 
 
@@ -56,7 +59,8 @@ def stage_create(
         raise ServiceError("This test set has been reported; its stages cannot change.")
     stage = ShearStage(test=test, specimen=specimen, stage_number=stage_number, **fields)
     stage.full_clean()
-    stage.save()
+    with acting(user):
+        stage.save()
     return stage
 
 
@@ -66,8 +70,10 @@ def stage_readings_store(
     stage: ShearStage,
     consolidation: Sequence[tuple[float, float]] = (),
     shear: Sequence[tuple[int, int, float, float, float, float]] = (),
+    reason: str = "",
 ) -> tuple[int, int]:
-    """Replace a stage's readings in one transaction.
+    """Replace a stage's readings in one transaction, with one audit row (counts and digests
+    before and after, ``reason``).
 
     ``consolidation`` rows are (elapsed_min, settlement_mm); ``shear`` rows are
     (traverse, seq, elapsed_min, horizontal_mm, vertical_mm, force_reading). Returns the counts saved.
@@ -76,6 +82,7 @@ def stage_readings_store(
     if stage.test.released_at is not None:
         raise ServiceError("This test set has been reported; its readings cannot change.")
     with transaction.atomic():
+        before = readings_state(stage.pk)
         ConsolidationReading.objects.filter(stage=stage).delete()
         ShearReading.objects.filter(stage=stage).delete()
         ConsolidationReading.objects.bulk_create(
@@ -99,5 +106,13 @@ def stage_readings_store(
                 for tr, seq, t, x, y, f in shear
             ],
             batch_size=2000,
+        )
+        readings_change_record(
+            stage=stage,
+            user=user,
+            source=ReadingsSource.STORED,
+            before=before,
+            after=rows_state(consolidation, shear),
+            reason=reason,
         )
     return len(consolidation), len(shear)

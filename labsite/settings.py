@@ -218,6 +218,8 @@ USE_TZ = True
 # --- Audit trail -------------------------------------------------------------------------------
 # Change reasons of any length (the default column is 100 characters).
 SIMPLE_HISTORY_HISTORY_CHANGE_REASON_USE_TEXT_FIELD = True
+# No "revert to this version" in the admin: every change goes through the services' rules.
+SIMPLE_HISTORY_REVERT_DISABLED = True
 
 # --- Files ------------------------------------------------------------------------------------
 STATIC_URL = "static/"

@@ -194,3 +194,7 @@ class ShearReadingAdmin(admin.ModelAdmin[ShearReading]):
 
 # Imported for their registrations: the equipment register and imports; runs and results (read-only).
 from testing import admin_equipment, admin_results  # noqa: E402, F401
+
+# isort: split
+# Last: adds the history pages to the admins registered above.
+from testing import admin_history  # noqa: E402, F401

@@ -99,8 +99,23 @@ def _require_open(stage: ShearStage) -> None:
 def display_name(filename: str | None) -> str:
     """The uploaded name reduced to its last part, printable, for display only."""
     base = PurePosixPath((filename or "upload").replace("\\", "/")).name
-    clean = "".join(ch for ch in base if ch.isprintable()).strip() or "upload"
+    clean = "".join(ch for ch in base if ch.isprintable()).strip()
+    if clean in {"", ".", ".."}:
+        clean = "upload"
     return clean[:200]
+
+
+_TEXT_SUFFIXES = (".csv", ".txt", ".dat", ".tsv")
+
+
+def _refuse_misnamed(data: bytes, filename: str) -> None:
+    """A text-named file that is really a workbook (zip) is refused; the reverse is refused by
+    the archive check ("not a valid XLSX workbook")."""
+    if filename.lower().endswith(_TEXT_SUFFIXES) and data[:4] == b"PK\x03\x04":
+        raise UnsafeSpreadsheet(
+            f"{display_name(filename)} is named as a text file but is a zip archive (a workbook?). "
+            "Save it with its real extension (.xlsx) and upload it again. Nothing was saved."
+        )
 
 
 def _read_capped(upload: Upload) -> bytes:
@@ -180,6 +195,7 @@ def stage_readings_preview(
     _require_technician(user)
     data = _read_capped(upload)
     try:
+        _refuse_misnamed(data, upload.name or "")
         if is_xlsx(data, upload.name or ""):
             check_archive(data, max_uncompressed_bytes=_max_unpacked_bytes())
         return preview_readings(
@@ -260,6 +276,7 @@ def stage_readings_import(
     record.save()
 
     try:
+        _refuse_misnamed(data, name)
         if is_xlsx(data, name):
             check_archive(data, max_uncompressed_bytes=_max_unpacked_bytes())
         parsed = parse_readings(

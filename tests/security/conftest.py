@@ -40,6 +40,22 @@ def media_root(settings: Any) -> Iterator[str]:
     celery_app.conf.task_always_eager = eager
 
 
+def issued_revision_for(
+    cast: Cast, records: Records, capture: Callable[..., Any]
+) -> ReportRevision:
+    """The records' three-stage set, computed, reported, checked, approved and issued (signed)."""
+    test: DirectShearTest = build_test_set(
+        user=cast.technician, project=records.project, sample=records.sample
+    )
+    compute(test, cast.technician, capture)
+    draft = services.report_create(user=cast.technician, project=records.project, tests=[test])
+    services.revision_check(user=cast.checker, revision=draft, password=PASSWORD)
+    services.revision_approve(user=cast.approver, revision=draft, password=PASSWORD)
+    revision = issue(draft, cast.approver, capture)
+    assert revision.state == "issued" and revision.pdf_sha256
+    return revision
+
+
 @pytest.fixture
 def issued_revision(
     media_root: str,
@@ -47,14 +63,5 @@ def issued_revision(
     records_a: Records,
     django_capture_on_commit_callbacks: Callable[..., Any],
 ) -> ReportRevision:
-    """Client A's three-stage set, computed, reported, checked, approved and issued (signed PDF)."""
-    test: DirectShearTest = build_test_set(
-        user=cast.technician, project=records_a.project, sample=records_a.sample
-    )
-    compute(test, cast.technician, django_capture_on_commit_callbacks)
-    draft = services.report_create(user=cast.technician, project=records_a.project, tests=[test])
-    services.revision_check(user=cast.checker, revision=draft, password=PASSWORD)
-    services.revision_approve(user=cast.approver, revision=draft, password=PASSWORD)
-    revision = issue(draft, cast.approver, django_capture_on_commit_callbacks)
-    assert revision.state == "issued" and revision.pdf_sha256
-    return revision
+    """Client A's report, issued through the real workflow."""
+    return issued_revision_for(cast, records_a, django_capture_on_commit_callbacks)

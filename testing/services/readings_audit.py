@@ -53,18 +53,22 @@ class ReadingsState:
         return hashlib.sha256(text.encode("ascii")).hexdigest()
 
 
-def _digest(columns: Sequence[np.ndarray], order: np.ndarray) -> PhaseDigest:
-    n = int(order.size)
-    table = np.empty((n, len(columns)), dtype="<f8")
+def _digest(columns: Sequence[np.ndarray], order: np.ndarray | None) -> PhaseDigest:
+    """sha256 of the rows (in ``order``; None = as given) as little-endian doubles, row-major."""
+    n = int(np.asarray(columns[0]).size)
+    rows = np.empty(n, dtype=[(f"c{k}", "<f8") for k in range(len(columns))])
     for k, column in enumerate(columns):
-        table[:, k] = np.asarray(column, dtype=np.float64)[order]
-    table += 0.0  # −0.0 → 0.0, as the database may give it back
-    return PhaseDigest(rows=n, sha256=hashlib.sha256(table.tobytes()).hexdigest())
+        values = np.asarray(column, dtype=np.float64) + 0.0  # −0.0 → 0.0, as a database may
+        rows[f"c{k}"] = values if order is None else values[order]
+    return PhaseDigest(rows=n, sha256=hashlib.sha256(memoryview(rows).cast("B")).hexdigest())
 
 
 def consolidation_digest(elapsed_min: np.ndarray, settlement_mm: np.ndarray) -> PhaseDigest:
     elapsed = np.asarray(elapsed_min, dtype=np.float64)
-    return _digest((elapsed, settlement_mm), np.argsort(elapsed, kind="stable"))
+    in_order = bool(np.all(elapsed[1:] > elapsed[:-1]))
+    return _digest(
+        (elapsed, settlement_mm), None if in_order else np.argsort(elapsed, kind="stable")
+    )
 
 
 def shear_digest(
@@ -75,7 +79,10 @@ def shear_digest(
     vertical_mm: np.ndarray,
     force_reading: np.ndarray,
 ) -> PhaseDigest:
-    order = np.lexsort((np.asarray(seq), np.asarray(traverse)))
+    tr, sq = np.asarray(traverse), np.asarray(seq)
+    d_tr, d_sq = tr[1:] - tr[:-1], sq[1:] - sq[:-1]
+    in_order = bool(np.all((d_tr > 0) | ((d_tr == 0) & (d_sq > 0))))
+    order = None if in_order else np.lexsort((sq, tr))
     return _digest((traverse, seq, elapsed_min, horizontal_mm, vertical_mm, force_reading), order)
 
 
@@ -88,12 +95,12 @@ def readings_state(stage_id: int) -> ReadingsState:
     """The stage's readings as stored now (read inside the caller's transaction)."""
     consolidation = list(
         ConsolidationReading.objects.filter(stage_id=stage_id)
-        .order_by()
+        .order_by("elapsed_min")
         .values_list("elapsed_min", "settlement_mm")
     )
     shear = list(
         ShearReading.objects.filter(stage_id=stage_id)
-        .order_by()
+        .order_by("traverse", "seq")
         .values_list(
             "traverse", "seq", "elapsed_min", "horizontal_mm", "vertical_mm", "force_reading"
         )

@@ -4,8 +4,7 @@ from __future__ import annotations
 
 from django import template
 from django.urls import reverse
-from django.utils.html import format_html
-from django.utils.safestring import mark_safe
+from django.utils.html import format_html, format_html_join
 
 from testing import access, analysis
 from testing.access import AnyUser
@@ -27,12 +26,13 @@ def plotly_scripts(context: template.Context) -> str:
     :func:`testing.views.assets.plotly_style_ids`), all carrying this response's CSP nonce."""
     request = context.get("request")
     nonce = str(getattr(request, "csp_nonce", "")) if request is not None else ""
-    styles = "".join(
-        format_html('<style id="{}" nonce="{}"></style>', style_id, nonce)
-        for style_id in plotly_style_ids()
+    styles = format_html_join(
+        "",
+        '<style id="{}" nonce="{}"></style>',
+        ((style_id, nonce) for style_id in plotly_style_ids()),
     )
     script = format_html('<script src="{}" nonce="{}"></script>', plotly_src(), nonce)
-    return mark_safe(styles + script)
+    return format_html("{}{}", styles, script)
 
 
 @register.simple_tag

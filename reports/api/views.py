@@ -2,6 +2,8 @@
 
 Sign-off actions (check, approve, issue) need the password again in the body; a race answers
 409 and leaves one result; a missing or wrong password answers 403 and signs nothing.
+As everywhere in the API, client accounts are read-only: any write is refused (403) before a
+record is looked up, so their own organisation's revisions and another's answer alike.
 """
 
 from __future__ import annotations
@@ -19,6 +21,7 @@ from rest_framework.response import Response
 from reports import selectors, services
 from reports.models import ReportRevision
 from testing import access
+from testing.api.permissions import LabAccess
 
 
 class RevisionSerializer(serializers.ModelSerializer[ReportRevision]):
@@ -74,6 +77,7 @@ class ReportRevisionViewSet(
     mixins.ListModelMixin, mixins.RetrieveModelMixin, viewsets.GenericViewSet[ReportRevision]
 ):
     serializer_class = RevisionSerializer
+    permission_classes = [LabAccess]
 
     def get_queryset(self) -> QuerySet[ReportRevision]:
         return selectors.revisions_for_user(user=self.request.user).order_by("-id")

@@ -3,12 +3,19 @@ its stages, readings, results and an envelope; plus an unreleased test set for c
 
 Results rows here are fixtures for access tests (made directly, not computed): these tests check who
 sees what, not the numbers.
+
+``world`` also gives each organisation reports, taken through the sign-off services by the
+personas: one issued (rendered and signed in-process, with its PDF), and one each waiting to be
+checked, approved and issued. Issuing costs seconds, so tests that never touch reports use
+``plain_world`` (the same records without reports).
 """
 
 from __future__ import annotations
 
 import itertools
-from dataclasses import dataclass
+import tempfile
+from collections.abc import Callable, Iterator
+from dataclasses import dataclass, replace
 from datetime import date, timedelta
 from decimal import Decimal
 from typing import Any
@@ -19,6 +26,9 @@ from django.utils import timezone
 from knox.models import AuthToken
 from rest_framework.test import APIClient
 
+from labsite.celery import app as celery_app
+from reports import services as report_services
+from reports.models import ReportRevision, RevisionState
 from testing.models import (
     ComputationRun,
     ConsolidationReading,
@@ -37,7 +47,8 @@ from testing.models import (
 from testing.services.records import specimen_create
 from testing.services.release import test_mark_released
 from testing.services.shear_setup import shear_test_create, stage_create
-from tests.conftest import Cast, Records
+from testing.services.stage_inputs import stage_inputs_load
+from tests.conftest import PASSWORD, Cast, Records
 
 PERSONAS = (
     "anonymous",
@@ -84,6 +95,11 @@ class OrgWorld:
     envelope: EnvelopeResult
     open_test: DirectShearTest  # not released: clients must not see it
     spare_specimen: Specimen  # not yet in a stage
+    # Reports of ``test`` (``world`` only; None in ``plain_world``):
+    revision: ReportRevision | None = None  # issued, with its signed PDF
+    draft_revision: ReportRevision | None = None  # waiting to be checked
+    checked_revision: ReportRevision | None = None  # waiting to be approved
+    approved_revision: ReportRevision | None = None  # waiting to be issued
 
 
 @dataclass(frozen=True)
@@ -161,7 +177,7 @@ def make_result_rows(stage: ShearStage, *, at: Any = None) -> tuple[ComputationR
         run=run,
         stage=stage,
         analysis_version="fixture",
-        inputs_hash="0" * 64,
+        inputs_hash=stage_inputs_load(stage).digest(),  # as if computed from these readings
         area_model="nominal",
         n_readings=3,
         normal_force_n=785.0,
@@ -230,8 +246,72 @@ def org_world(cast: Cast, records: Records, prefix: str) -> OrgWorld:
 
 
 @pytest.fixture
-def world(cast: Cast, records_a: Records, records_b: Records) -> World:
+def plain_world(cast: Cast, records_a: Records, records_b: Records) -> World:
+    """The records of both organisations, without reports."""
     return World(cast=cast, a=org_world(cast, records_a, "A"), b=org_world(cast, records_b, "B"))
+
+
+@pytest.fixture
+def report_media(settings: Any) -> Iterator[None]:
+    """Rendered PDFs and the self-signed lab key go to a throw-away folder; the render task runs
+    in-process even when REDIS_URL is set (no worker runs during these tests)."""
+    eager = celery_app.conf.task_always_eager
+    celery_app.conf.task_always_eager = True
+    settings.CELERY_TASK_ALWAYS_EAGER = True
+    with tempfile.TemporaryDirectory(prefix="tauline-api-media-") as folder:
+        settings.MEDIA_ROOT = folder
+        settings.TAULINE_SIGNING_KEY_FILE = ""
+        settings.TAULINE_SIGNING_CERT_FILE = ""
+        yield
+    celery_app.conf.task_always_eager = eager
+
+
+def with_reports(cast: Cast, side: OrgWorld, capture: Callable[..., Any]) -> OrgWorld:
+    """Reports of ``side.test`` at each sign-off state, made by the personas through the services
+    (technician prepares, checker checks, approver approves and issues)."""
+
+    def prepared() -> ReportRevision:
+        return report_services.report_create(
+            user=cast.technician, project=side.project, tests=[side.test]
+        )
+
+    def checked() -> ReportRevision:
+        return report_services.revision_check(
+            user=cast.checker, revision=prepared(), password=PASSWORD
+        )
+
+    def approved() -> ReportRevision:
+        return report_services.revision_approve(
+            user=cast.approver, revision=checked(), password=PASSWORD
+        )
+
+    to_issue = approved()
+    with capture(execute=True):  # the render task runs on commit, as after a web request
+        report_services.revision_issue(user=cast.approver, revision=to_issue, password=PASSWORD)
+    issued = ReportRevision.objects.get(pk=to_issue.pk)
+    assert issued.state == RevisionState.ISSUED and issued.pdf, issued.render_error
+    return replace(
+        side,
+        revision=issued,
+        draft_revision=prepared(),
+        checked_revision=checked(),
+        approved_revision=approved(),
+    )
+
+
+@pytest.fixture
+def world(
+    plain_world: World,
+    report_media: None,
+    django_capture_on_commit_callbacks: Callable[..., Any],
+) -> World:
+    """``plain_world`` plus each organisation's reports (one issued, one at each earlier state)."""
+    cast, capture = plain_world.cast, django_capture_on_commit_callbacks
+    return replace(
+        plain_world,
+        a=with_reports(cast, plain_world.a, capture),
+        b=with_reports(cast, plain_world.b, capture),
+    )
 
 
 def persona_user(cast: Cast, persona: str) -> User | None:

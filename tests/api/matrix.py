@@ -86,7 +86,7 @@ def record(list_post: Row | None = None) -> dict[str, dict[str, Row]]:
 
 
 def read_action() -> dict[str, Row]:
-    """A GET-only sub-list of one record (readings, events)."""
+    """A GET-only view of one record (readings, events, a revision's PDF)."""
     return {"GET": DETAIL, "POST": NO_WRITE, "PUT": NO_WRITE, "PATCH": NO_WRITE, "DELETE": NO_WRITE}
 
 
@@ -122,6 +122,19 @@ _LOGOUT_OTHER = row(401, 405, 405, 405, 405, 405, 405, 401)
 _PUBLIC_GET = row(200, 200, 200, 200, 200, 200, 200, 401)
 _PUBLIC_OTHER = row(405, 405, 405, 405, 405, 405, 405, 401)
 _ROOT_OTHER = row(401, 405, 405, 405, 405, 405, 405, 401)
+
+# Report revisions. Reads: a client sees only their organisation's issued revisions (and their
+# PDFs); lab staff see every revision. Sign-off actions, each on a revision waiting for that step
+# and with the caller's password: clients are refused as read-only (403) before any record is
+# looked up; staff without the role get the service's refusal (403). Check: a checker who did not
+# prepare the data. Approve and issue: an approving engineer who neither prepared nor checked it
+# (the lab manager holds neither role). Supersede (start an amendment of the issued revision):
+# technicians and the lab manager, who prepare reports.
+_revisions = record()
+_CHECK = row(401, 403, 403, 403, 200, 403, 403, 401)
+_APPROVE = row(401, 403, 403, 403, 403, 200, 403, 401)
+_ISSUE = row(401, 403, 403, 403, 403, 200, 403, 401)
+_SUPERSEDE = row(401, 403, 403, 201, 403, 403, 201, 401)
 
 MATRIX: dict[str, dict[str, Row]] = {
     "api:token": {
@@ -196,6 +209,13 @@ MATRIX: dict[str, dict[str, Row]] = {
     "api:envelope-recompute": post_action(
         _RECOMPUTE, get=_STAFF_ONLY_OTHER, other=_STAFF_ONLY_OTHER
     ),
+    "api:report-revision-list": _revisions["list"],
+    "api:report-revision-detail": _revisions["detail"],
+    "api:report-revision-pdf": read_action(),
+    "api:report-revision-check": post_action(_CHECK),
+    "api:report-revision-approve": post_action(_APPROVE),
+    "api:report-revision-issue": post_action(_ISSUE),
+    "api:report-revision-supersede": post_action(_SUPERSEDE),
     "api:throughput-list": {
         "GET": LIST,
         "POST": NO_WRITE,

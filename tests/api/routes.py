@@ -26,6 +26,13 @@ OBJECT_OF = {
     "computation-run": "run",
     "stage-result": "result",
     "envelope": "envelope",
+    "report-revision": "revision",  # the issued revision
+}
+# Sign-off actions act on a revision waiting for that step (the issued one would only answer 409).
+OBJECT_OF_ROUTE = {
+    "api:report-revision-check": "draft_revision",
+    "api:report-revision-approve": "checked_revision",
+    "api:report-revision-issue": "approved_revision",
 }
 MISSING_ID = 987_654_321
 
@@ -67,7 +74,9 @@ def detail_url(route: str, pk: object) -> str:
 def target_object(route: str, side: OrgWorld) -> Any:
     base = basename(route)
     assert base is not None, route
-    return getattr(side, OBJECT_OF[base])
+    target = getattr(side, OBJECT_OF_ROUTE.get(route, OBJECT_OF[base]))
+    assert target is not None, f"{route}: the world has no {base} (use the reports world)"
+    return target
 
 
 def create_payload(route: str, world: World, side: OrgWorld) -> dict[str, Any]:
@@ -133,6 +142,11 @@ ACTION_BODIES: dict[str, dict[str, Any]] = {
     "api:envelope-recompute": {"reason": "checking the permission matrix"},
     "api:stage-exclude": {"envelope_type": "peak", "reason": "checking the permission matrix"},
     "api:stage-include": {"envelope_type": "peak"},
+    # Sign-offs ask for the password again: every persona's is tests.conftest.PASSWORD.
+    "api:report-revision-check": {"password": PASSWORD},
+    "api:report-revision-approve": {"password": PASSWORD},
+    "api:report-revision-issue": {"password": PASSWORD},
+    "api:report-revision-supersede": {"reason": "checking the permission matrix"},
 }
 
 

@@ -78,41 +78,41 @@ def test_token_requests_are_throttled_per_username(cast: Cast, settings: Any) ->
 
 
 @pytest.mark.django_db
-def test_api_requests_are_throttled_per_user(world: World, settings: Any) -> None:
+def test_api_requests_are_throttled_per_user(plain_world: World, settings: Any) -> None:
     settings.TAULINE_API_THROTTLE_RATES = {
         **settings.TAULINE_API_THROTTLE_RATES,
         "user": "4/minute",
     }
-    first, second = token_client(world.cast.client_a), token_client(world.cast.client_a)
+    first, second = token_client(plain_world.cast.client_a), token_client(plain_world.cast.client_a)
     statuses = [
         c.get("/api/v1/projects/").status_code for c in (first, second, first, second, first)
     ]
     assert statuses == [200, 200, 200, 200, 429]  # two tokens, one user, one allowance
-    assert token_client(world.cast.client_b).get("/api/v1/projects/").status_code == 200
+    assert token_client(plain_world.cast.client_b).get("/api/v1/projects/").status_code == 200
 
 
 @pytest.mark.django_db
-def test_field_errors_service_refusals_and_role_refusals_share_one_body(world: World) -> None:
-    technician = token_client(world.cast.technician)
+def test_field_errors_service_refusals_and_role_refusals_share_one_body(plain_world: World) -> None:
+    technician = token_client(plain_world.cast.technician)
     bad = technician.post(
         "/api/v1/samples/",
-        {"borehole": world.a.borehole.pk, "reference": "", "depth_top_m": "x"},
+        {"borehole": plain_world.a.borehole.pk, "reference": "", "depth_top_m": "x"},
         format="json",
     ).json()
     assert bad["detail"] == "Some fields are not valid; see errors."
     assert {"reference", "depth_top_m", "depth_base_m", "sample_type"} <= set(bad["errors"])
 
     # A service refusal: the lifecycle rules, worded for the user, as a 400.
-    url = reverse("api:sample-transition", args=[world.a.sample.pk])
+    url = reverse("api:sample-transition", args=[plain_world.a.sample.pk])
     refused = technician.post(url, {"to_status": "reported"}, format="json")
     assert refused.status_code == 400
     assert refused.json()["detail"].startswith("Sample U1 is received; it cannot move to reported.")
     assert refused.json()["errors"] == {}
 
     # A role refusal from a service (a checker may not log samples in) is a 403.
-    checker = token_client(world.cast.checker)
+    checker = token_client(plain_world.cast.checker)
     body = {
-        "borehole": world.a.borehole.pk,
+        "borehole": plain_world.a.borehole.pk,
         "reference": "U7",
         "depth_top_m": "1.00",
         "depth_base_m": "1.20",
@@ -128,13 +128,13 @@ def test_field_errors_service_refusals_and_role_refusals_share_one_body(world: W
 
 @pytest.mark.django_db
 def test_protected_fields_cannot_be_written_and_the_state_moves_only_by_transition(
-    world: World,
+    plain_world: World,
 ) -> None:
-    technician = token_client(world.cast.technician)
+    technician = token_client(plain_world.cast.technician)
     created = technician.post(
         "/api/v1/samples/",
         {
-            "borehole": world.a.borehole.pk,
+            "borehole": plain_world.a.borehole.pk,
             "reference": "U8",
             "depth_top_m": "2.00",
             "depth_base_m": "2.40",
@@ -149,14 +149,14 @@ def test_protected_fields_cannot_be_written_and_the_state_moves_only_by_transiti
     test_set = technician.post(
         "/api/v1/test-sets/",
         {
-            "project": world.a.project.pk,
+            "project": plain_world.a.project.pk,
             "reference": "DS-77",
             "method": "iso-17892-10",
             "box_length_mm": 100.0,
             "box_width_mm": 100.0,
             "requested_on": "2026-11-20",
             "released_at": "2026-11-21T00:00:00Z",
-            "created_by": world.cast.manager.pk,
+            "created_by": plain_world.cast.manager.pk,
         },
         format="json",
     ).json()
@@ -165,8 +165,8 @@ def test_protected_fields_cannot_be_written_and_the_state_moves_only_by_transiti
     stage = technician.post(
         "/api/v1/stages/",
         {
-            "test": world.a.test.pk,
-            "specimen": world.a.spare_specimen.pk,
+            "test": plain_world.a.test.pk,
+            "specimen": plain_world.a.spare_specimen.pk,
             "stage_number": 2,
             "loading": "frame",
             "applied_normal_stress_kpa": 100.0,

@@ -51,10 +51,10 @@ def _keep_the_test_connection() -> Iterator[None]:
 
 
 @pytest.fixture
-def auth_headers(world: World) -> Headers:
+def auth_headers(plain_world: World) -> Headers:
     headers: dict[str, dict[str, str]] = {}
     for persona in PERSONAS:
-        user = persona_user(world.cast, persona)
+        user = persona_user(plain_world.cast, persona)
         if user is None:
             headers[persona] = {}
         else:

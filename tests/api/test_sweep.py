@@ -23,6 +23,10 @@ def _b_objects(world: World) -> dict[str, list[int]]:
     ids["test-set"].append(b.open_test.pk)
     ids["specimen"].append(b.spare_specimen.pk)
     ids["computation-run"].append(b.envelope.run_id)
+    # B's issued revision (with its PDF) is the OBJECT_OF target; add those in progress too.
+    for revision in (b.draft_revision, b.checked_revision, b.approved_revision):
+        assert revision is not None
+        ids["report-revision"].append(revision.pk)
     return ids
 
 
@@ -57,6 +61,15 @@ def test_client_a_gets_nothing_of_client_b_and_the_same_answer_as_for_a_missing_
     assert attempts >= 5 * len(detail_routes)
     assert successes == 0
     assert not differences, "\n".join(differences)
+    assert {"api:report-revision-detail", "api:report-revision-pdf"} <= set(detail_routes)
+
+    # The refusals are not for want of content: B's own token gets B's issued revision and PDF.
+    assert world.b.revision is not None
+    own = token_client(world.cast.client_b)
+    pdf = own.get(reverse("api:report-revision-pdf", kwargs={"pk": world.b.revision.pk}))
+    assert pdf.status_code == 200
+    assert pdf["Content-Type"] == "application/pdf"
+    assert pdf.getvalue().startswith(b"%PDF-")
 
 
 LIST_FILTERS = {
@@ -68,6 +81,7 @@ LIST_FILTERS = {
     "api:stage-list": {"test": "test"},
     "api:stage-result-list": {"stage": "stage", "test": "test", "project": "project"},
     "api:envelope-list": {"test": "test", "project": "project"},
+    "api:report-revision-list": {},  # no filters: the page-size abuse only
 }
 
 
@@ -94,15 +108,19 @@ def test_lists_filters_and_page_size_abuse_show_client_a_no_foreign_row(world: W
     # And the same lists do show client A's own records (the scoping is not simply "nothing").
     own = client.get(reverse("api:stage-result-list")).json()["results"]
     assert [row["id"] for row in own] == [world.a.result.pk]
+    # Of A's four revisions only the issued one is a client's to see.
+    assert world.a.revision is not None
+    own_revisions = client.get(reverse("api:report-revision-list")).json()["results"]
+    assert [row["id"] for row in own_revisions] == [world.a.revision.pk]
 
 
 @pytest.mark.django_db
-def test_page_size_is_capped_at_200(world: World) -> None:
+def test_page_size_is_capped_at_200(plain_world: World) -> None:
     from testing.models import ShearReading
 
     ShearReading.objects.bulk_create(
         ShearReading(
-            stage=world.a.stage,
+            stage=plain_world.a.stage,
             seq=100 + i,
             elapsed_min=10 + i,
             horizontal_mm=0.01 * i,
@@ -111,8 +129,8 @@ def test_page_size_is_capped_at_200(world: World) -> None:
         )
         for i in range(250)
     )
-    client = token_client(world.cast.technician)
-    url = reverse("api:stage-readings", kwargs={"pk": world.a.stage.pk})
+    client = token_client(plain_world.cast.technician)
+    url = reverse("api:stage-readings", kwargs={"pk": plain_world.a.stage.pk})
     body = client.get(url, {"page_size": 5000}).json()
     assert body["count"] == 253
     assert len(body["results"]) == 200
@@ -121,26 +139,26 @@ def test_page_size_is_capped_at_200(world: World) -> None:
 
 @pytest.mark.django_db
 def test_clients_see_neither_unreleased_sets_nor_results_written_after_release(
-    world: World,
+    plain_world: World,
 ) -> None:
-    client_a = token_client(world.cast.client_a)
-    technician = token_client(world.cast.technician)
-    open_url = reverse("api:test-set-detail", kwargs={"pk": world.a.open_test.pk})
+    client_a = token_client(plain_world.cast.client_a)
+    technician = token_client(plain_world.cast.technician)
+    open_url = reverse("api:test-set-detail", kwargs={"pk": plain_world.a.open_test.pk})
     assert client_a.get(open_url).status_code == 404
     assert technician.get(open_url).status_code == 200
     listed = [row["id"] for row in client_a.get(reverse("api:test-set-list")).json()["results"]]
-    assert listed == [world.a.test.pk]
+    assert listed == [plain_world.a.test.pk]
 
     # A recompute after release adds a row; the client keeps seeing what was released.
-    released_at = world.a.test.released_at
+    released_at = plain_world.a.test.released_at
     assert released_at is not None
-    _, later = make_result_rows(world.a.stage, at=released_at + timedelta(hours=1))
+    _, later = make_result_rows(plain_world.a.stage, at=released_at + timedelta(hours=1))
     later_url = reverse("api:stage-result-detail", kwargs={"pk": later.pk})
     assert client_a.get(later_url).status_code == 404
     assert technician.get(later_url).status_code == 200
     latest = client_a.get(reverse("api:stage-result-list"), {"latest": "true"}).json()["results"]
-    assert [row["id"] for row in latest] == [world.a.result.pk]
+    assert [row["id"] for row in latest] == [plain_world.a.result.pk]
     staff_latest = technician.get(
-        reverse("api:stage-result-list"), {"latest": "true", "test": world.a.test.pk}
+        reverse("api:stage-result-list"), {"latest": "true", "test": plain_world.a.test.pk}
     ).json()["results"]
     assert [row["id"] for row in staff_latest] == [later.pk]

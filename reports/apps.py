@@ -5,3 +5,10 @@ class ReportsConfig(AppConfig):
     name = "reports"
     verbose_name = "Reports and sign-off"
     default_auto_field = "django.db.models.BigAutoField"
+
+    def ready(self) -> None:
+        # testing never imports reports: it announces the demo, and reports adds its report.
+        from reports.demo import on_demo_loaded
+        from testing.signals import demo_loaded
+
+        demo_loaded.connect(on_demo_loaded, dispatch_uid="reports.demo_report")

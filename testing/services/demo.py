@@ -36,6 +36,7 @@ from testing.services.accounts import lab_user_create
 from testing.services.lifecycle import sample_transition
 from testing.services.records import sample_receive, specimen_create
 from testing.services.shear_setup import shear_test_create, stage_create, stage_readings_store
+from testing.signals import demo_loaded
 
 DEMO_PROJECT_REFERENCE = "TL-2026-014"
 STANDARD_GRAVITY_M_S2 = 9.80665
@@ -357,6 +358,13 @@ def load_demo(*, now: datetime | None = None) -> bool:
             at=at,
             received_on=at.date(),
         )
+    # Listeners (the reports app adds a demo report) run after the commit: the computations queued
+    # above are handed over first, and anything they write is outside this transaction.
+    transaction.on_commit(
+        lambda: demo_loaded.send(
+            sender=load_demo, project_reference=project.reference, password=password, now=now
+        )
+    )
     return True
 
 

@@ -5,6 +5,7 @@
 #   make test    the whole test suite (extra pytest arguments: make test PYTEST_ARGS="-k envelope")
 #   make lint    ruff, formatting, mypy, import contracts, migrations check, Django system checks
 #   make bench   every benchmarks/bench_*.py in turn
+#   make loadtest  50 clients for 60 s against gunicorn + PostgreSQL + Celery (scripts/topology.py)
 #   make install / make clean / make distclean
 
 PY ?= python3
@@ -16,10 +17,10 @@ PYTHON := $(BIN)/python
 STAMP := $(VENV)/.installed
 
 .DEFAULT_GOAL := help
-.PHONY: help install system-deps run test lint bench clean distclean
+.PHONY: help install system-deps run test lint bench loadtest clean distclean
 
 help:
-	@sed -n '3,9p' Makefile | sed 's/^# \{0,1\}//'
+	@sed -n '3,10p' Makefile | sed 's/^# \{0,1\}//'
 
 # System libraries first (WeasyPrint's Pango, fonts): installed with apt as root on
 # Debian/Ubuntu, otherwise the script prints the one command to run and stops.
@@ -61,6 +62,11 @@ bench: install
 	done; \
 	if [ "$$found" = 0 ]; then echo "No benchmarks/bench_*.py found."; fi; \
 	if [ -n "$$failed" ]; then echo "Benchmarks failed:$$failed" >&2; exit 1; fi
+
+# Starts its own redis-server, scratch PostgreSQL database, gunicorn and a Celery worker; fails on
+# any failed request or a p99 over benchmarks/loadtest_budget.json.
+loadtest: install
+	$(PYTHON) scripts/loadtest.py
 
 # Build and tool caches only; keeps .venv and var/ (the local database and media).
 clean:

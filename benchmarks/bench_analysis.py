@@ -19,6 +19,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from testing.analysis import BoxGeometry, StageCriteria, fit_envelopes_batch, reduce_stage
 
+SMOKE = "--smoke" in sys.argv  # tiny sizes, no target: checks that the benchmark still runs
+
 
 def best_of(
     fn: Callable[[], object], baseline: Callable[[], object], repeats: int
@@ -190,6 +192,10 @@ def report(name: str, value: float, baseline: float, unit: str, target: float) -
 
 
 def main() -> int:
+    if SMOKE:
+        bench_stage(n=1_000, repeats=2)
+        bench_batch(n_sets=100, repeats=2)
+        return 0
     results = [bench_stage(), bench_batch()]
     return 0 if all(results) else 1
 

@@ -122,6 +122,8 @@ class Topology:
         log_dir: Path | None = None,
         extra_env: dict[str, str] | None = None,
         load_demo: bool = True,
+        celery_concurrency: int = 2,
+        migrate: bool = True,
     ) -> None:
         self.web_workers = web_workers
         self.celery_workers = celery_workers
@@ -130,6 +132,8 @@ class Topology:
         self.dir.mkdir(parents=True, exist_ok=True)
         self.extra_env = extra_env or {}
         self.load_demo = load_demo
+        self.celery_concurrency = celery_concurrency
+        self.migrate = migrate
         self.procs: list[tuple[str, subprocess.Popen[bytes]]] = []
         self.logs: list[Path] = []
         self.scratch_db: str | None = None
@@ -237,22 +241,24 @@ class Topology:
 
         wait_until("redis-server", redis_up, 15, self.logs)
 
-        self.manage("migrate", "--noinput")
+        if self.migrate:
+            self.manage("migrate", "--noinput")
         if not _static_fresh():
             self.manage("collectstatic", "--noinput", timeout_s=600)
         if self.load_demo:
             self.manage("loaddemo")
 
-        self._start(
-            "gunicorn",
-            [
-                str(BIN / "gunicorn"),
-                "labsite.wsgi:application",
-                "--bind", f"127.0.0.1:{self.web_port}",
-                "--workers", str(self.web_workers),
-                "--access-logfile", "-",
-            ],
-        )  # fmt: skip
+        if self.web_workers:
+            self._start(
+                "gunicorn",
+                [
+                    str(BIN / "gunicorn"),
+                    "labsite.wsgi:application",
+                    "--bind", f"127.0.0.1:{self.web_port}",
+                    "--workers", str(self.web_workers),
+                    "--access-logfile", "-",
+                ],
+            )  # fmt: skip
         for i in range(1, self.celery_workers + 1):
             self._start(
                 f"celery{i}",
@@ -261,17 +267,18 @@ class Topology:
                     "-A", "labsite",
                     "worker",
                     "--loglevel=INFO",
-                    "--concurrency=2",
+                    f"--concurrency={self.celery_concurrency}",
                     "--hostname", self.worker_hostname(i),
                 ],
             )  # fmt: skip
         self._check_alive()
-        wait_until(
-            "gunicorn",
-            lambda: http_status(self.url + "/healthz") == 200,
-            START_TIMEOUT_S,
-            self.logs,
-        )
+        if self.web_workers:
+            wait_until(
+                "gunicorn",
+                lambda: http_status(self.url + "/healthz") == 200,
+                START_TIMEOUT_S,
+                self.logs,
+            )
         if self.celery_workers:
             wait_until("celery workers", self._workers_ready, START_TIMEOUT_S, self.logs)
 

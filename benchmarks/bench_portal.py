@@ -1,0 +1,181 @@
+"""Benchmark: the client portal page with 50 released test sets, each in an issued report.
+
+Measured: ``GET /portal/`` as ``client-a`` through the whole Django stack (middleware, session,
+sign-in, access filter, query, template). Baseline, in the same run: rendering the same template
+with the same revisions already in memory (``render_to_string``, no request handling, no query).
+The page's query count is also checked to be the same with 5 and with 50 test sets (no query
+per row).
+
+Targets: ratio <= 3 and the same query count at 5 and 50 sets. Runs on a scratch PostgreSQL
+database (``TAULINE_BENCH_PG``, default ``postgres://postgres@127.0.0.1:5432/``), dropped at the
+end. ``--smoke``: 2 and 5 sets, few repeats, no timing target (the query-count check stays).
+
+    .venv/bin/python benchmarks/bench_portal.py [--smoke]
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+import time
+import uuid
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+import psycopg
+
+SERVER = os.environ.get("TAULINE_BENCH_PG", "postgres://postgres@127.0.0.1:5432/")
+SCRATCH = f"tauline_bench_portal_{uuid.uuid4().hex[:8]}"
+os.environ["DATABASE_URL"] = SERVER.rstrip("/") + "/" + SCRATCH
+os.environ.pop("REDIS_URL", None)
+os.environ.setdefault("DJANGO_SETTINGS_MODULE", "labsite.settings")
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
+
+TARGET_RATIO = 3.0
+
+
+def best_of(
+    fn: Callable[[], object], baseline: Callable[[], object], repeats: int
+) -> tuple[float, float]:
+    """Best wall times [s], interleaved so that load changes hit both alike."""
+    best_fn = best_base = float("inf")
+    for _ in range(repeats):
+        t0 = time.perf_counter()
+        fn()
+        t1 = time.perf_counter()
+        baseline()
+        t2 = time.perf_counter()
+        best_fn, best_base = min(best_fn, t1 - t0), min(best_base, t2 - t1)
+    return best_fn, best_base
+
+
+def main() -> int:
+    parser = argparse.ArgumentParser()
+    parser.add_argument("--smoke", action="store_true", help="tiny sizes, no timing target")
+    args = parser.parse_args()
+    admin = psycopg.connect(SERVER.rstrip("/") + "/postgres", autocommit=True)
+    admin.execute(f'CREATE DATABASE "{SCRATCH}"')
+    try:
+        return run(smoke=args.smoke)
+    finally:
+        from django.db import connections
+
+        connections.close_all()
+        admin.execute(f'DROP DATABASE IF EXISTS "{SCRATCH}" WITH (FORCE)')
+        admin.close()
+
+
+def add_issued_sets(project: Any, users: dict[str, Any], start: int, stop: int) -> None:
+    """Test sets ``start``..``stop-1``, each released in its own issued report (revision 1)."""
+    from datetime import date
+
+    from django.utils import timezone
+
+    from reports.models import Report, ReportRevision
+    from testing.services.release import test_mark_released
+    from testing.services.shear_setup import shear_test_create
+
+    now = timezone.now()
+    for i in range(start, stop):
+        test = shear_test_create(
+            user=users["technician"], project=project, reference=f"DS-P{i:03d}",
+            method="bs-1377-7", box_length_mm=60.0, box_width_mm=60.0,
+            requested_on=date(2026, 3, 2),
+        )  # fmt: skip
+        test_mark_released(test=test, at=now)
+        report = Report.objects.create(
+            number=f"R-P{i:03d}", project=project, created_by=users["technician"]
+        )
+        report.tests.add(test)
+        ReportRevision.objects.create(
+            report=report, number=1, state="issued", content_sha256="0" * 64,
+            prepared_by=users["technician"], checked_by=users["checker"],
+            approved_by=users["engineer"], issued_by=users["manager"], issued_at=now,
+            pdf=f"reports/bench-{i}.pdf", pdf_sha256="1" * 64,
+        )  # fmt: skip
+
+
+def run(*, smoke: bool) -> int:
+    import django
+
+    django.setup()
+    from django.contrib.auth.models import User
+    from django.core.management import call_command
+    from django.db import connection
+    from django.template.loader import render_to_string
+    from django.test import Client, RequestFactory
+    from django.test.utils import CaptureQueriesContext
+
+    from reports import selectors as report_selectors
+    from testing.models import Project
+    from testing.services import demo
+
+    call_command("migrate", verbosity=0)
+    demo.load_demo()
+    users = {
+        name: User.objects.get(username=name)
+        for name in ("technician", "checker", "engineer", "manager", "client-a")
+    }
+    project = Project.objects.get(reference=demo.DEMO_PROJECT_REFERENCE)
+    small, large = (2, 5) if smoke else (5, 50)
+    repeats = 5 if smoke else 30
+
+    client = Client(HTTP_HOST="127.0.0.1")
+    client.force_login(users["client-a"])
+
+    def page() -> bytes:
+        response = client.get("/portal/")
+        assert response.status_code == 200, response.status_code
+        return response.content
+
+    def queries() -> int:
+        page()  # warm: session and profile caches as in a running server
+        with CaptureQueriesContext(connection) as ctx:
+            page()
+        return len(ctx.captured_queries)
+
+    add_issued_sets(project, users, 0, small)
+    n_small = queries()
+    add_issued_sets(project, users, small, large)
+    n_large = queries()
+    body = page()
+    assert body.count(b"/portal/revisions/") >= 2 * large, "every revision listed (link and PDF)"
+
+    request = RequestFactory().get("/portal/", HTTP_HOST="127.0.0.1")
+    request.user = users["client-a"]
+    request.csp_nonce = "bench"  # type: ignore[attr-defined]
+    revisions = list(
+        report_selectors.revisions_for_user(user=users["client-a"]).filter(issued_at__isnull=False)
+    )
+    assert len(revisions) >= large
+
+    def bare() -> str:
+        return render_to_string("portal/home.html", {"revisions": revisions}, request=request)
+
+    if os.environ.get("TAULINE_BENCH_PROFILE"):  # where the page's time goes
+        import cProfile
+        import pstats
+
+        profiler = cProfile.Profile()
+        profiler.runcall(lambda: [page() for _ in range(repeats)])
+        pstats.Stats(profiler, stream=sys.stderr).sort_stats("cumulative").print_stats(40)
+    page_s, bare_s = best_of(page, bare, repeats)
+    ratio = page_s / bare_s
+    print(
+        f"# queries per page: {n_small} with {small} test sets, {n_large} with {large}",
+        file=sys.stderr,
+    )
+    print(
+        f"bench portal_{large}_sets: {1000 * page_s:.2f} ms; baseline {1000 * bare_s:.2f} ms; "
+        f"ratio {ratio:.2f} (target <= {TARGET_RATIO:g}; queries {n_large} == {n_small})"
+    )
+    ok = n_small == n_large and (smoke or ratio <= TARGET_RATIO)
+    if not ok:
+        print("bench portal: target missed", file=sys.stderr)
+    return 0 if ok else 1
+
+
+if __name__ == "__main__":
+    sys.exit(main())

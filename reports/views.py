@@ -45,7 +45,8 @@ def report_list(request: HttpRequest) -> HttpResponse:
 def report_create(request: HttpRequest) -> HttpResponse:
     user = _staff(request)
     form = forms.ReportCreateForm(
-        request.POST or None, initial={"project": request.GET.get("project")}
+        request.POST or None,
+        initial={"project": request.GET.get("project"), "tests": request.GET.getlist("tests")},
     )
     if request.method == "POST" and form.is_valid():
         try:

@@ -52,6 +52,12 @@ def is_manager(user: AnyUser) -> bool:
 
 
 @register.filter
+def can_enter_readings(user: AnyUser) -> bool:
+    """Technicians and the lab manager: they enter data and prepare reports."""
+    return access.can_enter_readings(user)
+
+
+@register.filter
 def criterion_label(code: str) -> str:
     """The failure criterion in words (as stored, AGS SHBT_CRIT style codes)."""
     return analysis.CRITERION_LABELS.get(code, code)

@@ -60,7 +60,7 @@ def _digest(columns: Sequence[np.ndarray], order: np.ndarray | None) -> PhaseDig
     for k, column in enumerate(columns):
         values = np.asarray(column, dtype=np.float64) + 0.0  # −0.0 → 0.0, as a database may
         rows[f"c{k}"] = values if order is None else values[order]
-    return PhaseDigest(rows=n, sha256=hashlib.sha256(memoryview(rows).cast("B")).hexdigest())
+    return PhaseDigest(rows=n, sha256=hashlib.sha256(rows.data.cast("B")).hexdigest())
 
 
 def consolidation_digest(elapsed_min: np.ndarray, settlement_mm: np.ndarray) -> PhaseDigest:

@@ -143,6 +143,12 @@ TAULINE_RUN_LEASE_SECONDS = env_int("TAULINE_RUN_LEASE_SECONDS", 60, minimum=1)
 TAULINE_RUN_REPUBLISH_SECONDS = env_int("TAULINE_RUN_REPUBLISH_SECONDS", 120, minimum=1)
 # How often each worker's heartbeat thread marks the worker alive and runs the outbox relay.
 TAULINE_WORKER_HEARTBEAT_SECONDS = env_int("TAULINE_WORKER_HEARTBEAT_SECONDS", 5, minimum=1)
+# The manager's dashboard figures are kept this long in the (Redis) cache shared by the web
+# workers, and recomputed at once when a sample is added, edited or moved; 0 turns it off.
+# Off by default without Redis (one process: nothing to share).
+TAULINE_DASHBOARD_CACHE_SECONDS = env_int(
+    "TAULINE_DASHBOARD_CACHE_SECONDS", 60 if REDIS_URL else 0, minimum=0
+)
 CELERY_BROKER_CONNECTION_TIMEOUT = 1.0
 CELERY_BROKER_CONNECTION_RETRY_ON_STARTUP = True
 # A web request publishes once and gives up fast when the broker is down; the outbox keeps the job.

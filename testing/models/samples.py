@@ -123,7 +123,10 @@ class Sample(models.Model):
                 condition=Q(due_on__isnull=True) | Q(due_on__gte=F("received_on")),
             ),
         ]
-        indexes = [models.Index(fields=["status", "due_on"])]
+        indexes = [
+            models.Index(fields=["status", "due_on"]),
+            models.Index(fields=["received_on"], name="sample_received_on_idx"),  # dashboard
+        ]
 
     def __str__(self) -> str:
         return f"{self.borehole}/{self.reference} ({self.depth_top_m}–{self.depth_base_m} m)"
@@ -144,6 +147,12 @@ class SampleEvent(models.Model):
         constraints = [
             models.CheckConstraint(
                 name="sample_event_moves", condition=~Q(from_status=F("to_status"))
+            ),
+        ]
+        indexes = [
+            # The dashboard's "reported per week/month" and turnaround (index-only on PostgreSQL).
+            models.Index(
+                fields=["to_status", "at"], include=["sample"], name="sample_event_to_at_idx"
             ),
         ]
 

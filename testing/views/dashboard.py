@@ -136,7 +136,7 @@ def technician_figure(dashboard: Dashboard) -> Figure:
 
 @manager_page
 def dashboard(request: HttpRequest) -> HttpResponse:
-    figures = selectors_dashboard.dashboard_for_user(user=request.user)
+    figures = selectors_dashboard.dashboard_cached(user=request.user)
     context = {
         "d": figures,
         "weekly_chart": weekly_figure(figures.weeks),

@@ -7,13 +7,17 @@ The key and certificate come from ``TAULINE_SIGNING_KEY_FILE`` / ``TAULINE_SIGNI
 
 from __future__ import annotations
 
+import asyncio
 import datetime as dt
 import hashlib
 import io
 import os
 import threading
+from collections.abc import Callable
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from pathlib import Path
+from typing import Any, TypeVar
 
 from asn1crypto import x509 as asn1_x509
 from cryptography import x509
@@ -30,6 +34,7 @@ from pyhanko.sign.validation.status import SignatureCoverageLevel
 from pyhanko_certvalidator import ValidationContext
 
 SIGNATURE_FIELD = "TaulineLabSignature"
+T = TypeVar("T")
 _lock = threading.Lock()
 
 
@@ -122,8 +127,24 @@ def lab_certificate() -> asn1_x509.Certificate:
     return asn1_x509.Certificate.load(der)
 
 
+def _off_the_event_loop(fn: Callable[..., T], *args: Any, **kwargs: Any) -> T:
+    """pyHanko's synchronous calls start an asyncio loop of their own, which fails inside a thread
+    already running one (an async server, Playwright's synchronous API): run them on a short-lived
+    thread of their own then."""
+    try:
+        asyncio.get_running_loop()
+    except RuntimeError:
+        return fn(*args, **kwargs)
+    with ThreadPoolExecutor(max_workers=1, thread_name_prefix="pdf-signing") as pool:
+        return pool.submit(fn, *args, **kwargs).result()
+
+
 def sign_pdf(pdf: bytes, *, reason: str, signer_name: str) -> bytes:
     """PAdES B-B signature over the whole PDF with the lab's key."""
+    return _off_the_event_loop(_sign_pdf, pdf, reason=reason, signer_name=signer_name)
+
+
+def _sign_pdf(pdf: bytes, *, reason: str, signer_name: str) -> bytes:
     key_path, cert_path = _ensure_keys()
     signer = signers.SimpleSigner.load(str(key_path), str(cert_path))
     if signer is None:
@@ -163,6 +184,10 @@ class SignatureCheck:
 
 def verify_pdf(pdf: bytes) -> SignatureCheck:
     """Check the lab signature of a PDF against the lab's own certificate, offline."""
+    return _off_the_event_loop(_verify_pdf, pdf)
+
+
+def _verify_pdf(pdf: bytes) -> SignatureCheck:
     try:
         reader = PdfFileReader(io.BytesIO(pdf), strict=False)
         signatures = reader.embedded_signatures

@@ -6,6 +6,7 @@ client A), ``client_b`` (a user of client B) and ``deactivated`` (a former techn
 
 from __future__ import annotations
 
+from collections.abc import Iterator
 from dataclasses import dataclass
 from datetime import date
 from decimal import Decimal
@@ -39,6 +40,21 @@ class Records:
     project: Project
     borehole: Borehole
     sample: Sample
+
+
+@pytest.fixture(autouse=True)
+def _tasks_in_process(settings: Any) -> Iterator[None]:
+    """Background tasks run in the test process, even when CI sets REDIS_URL for the whole run.
+
+    Tests of the real broker and workers (marked ``worker``) start their own processes instead.
+    """
+    from labsite.celery import app
+
+    settings.CELERY_TASK_ALWAYS_EAGER = True
+    previous = app.conf.task_always_eager
+    app.conf.task_always_eager = True
+    yield
+    app.conf.task_always_eager = previous
 
 
 @pytest.fixture(autouse=True)

@@ -60,6 +60,15 @@ def _payload(port: int, secret_file: Path) -> str:
     )
 
 
+def _fitted(model: Any, **values: str) -> dict[str, str]:
+    """Each value cut to its column's length (PostgreSQL enforces it; SQLite does not)."""
+    out = {}
+    for name, value in values.items():
+        limit = model._meta.get_field(name).max_length
+        out[name] = value[:limit] if limit else value
+    return out
+
+
 def test_injection_in_every_text_field(
     cast: Cast,
     records_a: Records,
@@ -72,13 +81,16 @@ def test_injection_in_every_text_field(
         secret = Path(fh.name)
     text = _payload(port, secret)
     Organisation.objects.filter(pk=cast.org_a.pk).update(
-        name=f"Client A{text}", address=text, contact_name=text, contact_email="a@example.org"
+        **_fitted(Organisation, name=f"Client A{text}", address=text, contact_name=text),
+        contact_email="a@example.org",
     )
     Project.objects.filter(pk=records_a.project.pk).update(
-        name=f"Site{text}", site_name=text, site_location=text, client_reference=text[:80]
+        **_fitted(
+            Project, name=f"Site{text}", site_name=text, site_location=text, client_reference=text
+        )
     )
     Sample.objects.filter(pk=records_a.sample.pk).update(
-        description=text, condition_on_receipt=text[:200]
+        **_fitted(Sample, description=text, condition_on_receipt=text)
     )
     records_a.project.refresh_from_db()
     records_a.sample.refresh_from_db()

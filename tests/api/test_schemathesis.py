@@ -79,7 +79,8 @@ def _bounded(test: Any) -> Any:
     return pytest.mark.security(test)
 
 
-def _call(case: Any, headers: dict[str, str]) -> None:
+def _check_case(case: Any, headers: dict[str, str]) -> None:
+    """Call the operation and validate the response against the schema (raises on a violation)."""
     if case.path == "/api/v1/auth/logout/":
         return  # revoking would spend the persona's token for the rest of the run
     case.call_and_validate(headers=headers, checks=CHECKS)
@@ -87,14 +88,14 @@ def _call(case: Any, headers: dict[str, str]) -> None:
 
 @_bounded
 def test_schema_holds_for_anonymous_callers(case: Any, auth_headers: Headers) -> None:
-    _call(case, auth_headers["anonymous"])
+    _check_case(case, auth_headers["anonymous"])
 
 
 @_bounded
 def test_schema_holds_for_client_a(case: Any, auth_headers: Headers) -> None:
-    _call(case, auth_headers["client_a"])
+    _check_case(case, auth_headers["client_a"])
 
 
 @_bounded
 def test_schema_holds_for_a_technician(case: Any, auth_headers: Headers) -> None:
-    _call(case, auth_headers["technician"])
+    _check_case(case, auth_headers["technician"])

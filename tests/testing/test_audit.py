@@ -99,7 +99,7 @@ RECORD_VALUES: dict[str, dict[str, list[Any]]] = {
     "sample": {"storage_location": ["", "Rack C3", "Cold store 2"]},
 }
 INVALID = {("specimen", "height_mm", -1.0)}
-REASONS = ["", "Re-measured with the calibrated caliper", "Transcription error on the sheet"]
+REASONS = ["", "Re-measured with the calibrated caliper", "Copying error on the sheet"]
 
 
 @pytest.fixture(autouse=True)

@@ -53,13 +53,13 @@ def _test(
     return DirectShearTest.objects.create(**fields)
 
 
-def _refused(create: object) -> None:
+def _assert_refused(create: object) -> None:
     with pytest.raises(IntegrityError), transaction.atomic():
         create()  # type: ignore[operator]
 
 
 def test_project_reference_is_unique_across_the_lab(records_a: Records, cast: Cast) -> None:
-    _refused(
+    _assert_refused(
         lambda: Project.objects.create(
             organisation=cast.org_b, reference=records_a.project.reference, name="x"
         )
@@ -69,7 +69,7 @@ def test_project_reference_is_unique_across_the_lab(records_a: Records, cast: Ca
 def test_borehole_reference_unique_per_project_but_reusable_elsewhere(
     records_a: Records, records_b: Records
 ) -> None:
-    _refused(lambda: Borehole.objects.create(project=records_a.project, reference="BH01"))
+    _assert_refused(lambda: Borehole.objects.create(project=records_a.project, reference="BH01"))
     assert records_b.borehole.reference == records_a.borehole.reference  # same name, other project
 
 
@@ -80,17 +80,17 @@ def test_sample_depths_must_be_ordered_and_nonnegative(records_a: Records, cast:
         "received_on": date(2026, 11, 1),
         "received_by": cast.technician,
     }
-    _refused(
+    _assert_refused(
         lambda: Sample.objects.create(
             reference="B2", depth_top_m=Decimal("3.0"), depth_base_m=Decimal("2.5"), **base
         )
     )
-    _refused(
+    _assert_refused(
         lambda: Sample.objects.create(
             reference="B3", depth_top_m=Decimal("-0.5"), depth_base_m=Decimal("0.5"), **base
         )
     )
-    _refused(
+    _assert_refused(
         lambda: Sample.objects.create(
             reference="U1", depth_top_m=Decimal("5.0"), depth_base_m=Decimal("5.5"), **base
         )
@@ -98,7 +98,7 @@ def test_sample_depths_must_be_ordered_and_nonnegative(records_a: Records, cast:
 
 
 def test_sample_due_date_cannot_precede_receipt(records_a: Records, cast: Cast) -> None:
-    _refused(
+    _assert_refused(
         lambda: Sample.objects.create(
             borehole=records_a.borehole,
             reference="D9",
@@ -113,16 +113,16 @@ def test_sample_due_date_cannot_precede_receipt(records_a: Records, cast: Cast) 
 
 
 def test_specimen_dimensions_must_be_positive_and_match_shape(records_a: Records) -> None:
-    _refused(lambda: _specimen(records_a.sample, "S0", height_mm=0.0))
-    _refused(lambda: _specimen(records_a.sample, "S0", width_mm=-60.0))
-    _refused(
+    _assert_refused(lambda: _specimen(records_a.sample, "S0", height_mm=0.0))
+    _assert_refused(lambda: _specimen(records_a.sample, "S0", width_mm=-60.0))
+    _assert_refused(
         lambda: _specimen(records_a.sample, "S0", shape="circular")
     )  # square sizes, no diameter
-    _refused(
+    _assert_refused(
         lambda: _specimen(records_a.sample, "S0", preparation="recompacted")
     )  # no target density
     _specimen(records_a.sample, "S1")
-    _refused(lambda: _specimen(records_a.sample, "S1"))  # duplicate reference in the sample
+    _assert_refused(lambda: _specimen(records_a.sample, "S1"))  # duplicate reference in the sample
 
 
 def test_stage_numbers_unique_per_test_and_lever_loading_complete(
@@ -139,18 +139,20 @@ def test_stage_numbers_unique_per_test_and_lever_loading_complete(
         test=test, stage_number=1, specimen=_specimen(records_a.sample, "S1"), **lever
     )
     s2 = _specimen(records_a.sample, "S2")
-    _refused(lambda: ShearStage.objects.create(test=test, stage_number=1, specimen=s2, **lever))
-    _refused(
+    _assert_refused(
+        lambda: ShearStage.objects.create(test=test, stage_number=1, specimen=s2, **lever)
+    )
+    _assert_refused(
         lambda: ShearStage.objects.create(
             test=test, stage_number=2, specimen=s2, **{**lever, "lever_ratio": 0}
         )
     )
-    _refused(
+    _assert_refused(
         lambda: ShearStage.objects.create(
             test=test, stage_number=2, specimen=s2, hanger_mass_kg=1.0
         )
     )
-    _refused(
+    _assert_refused(
         lambda: ShearStage.objects.create(test=test, stage_number=2, specimen=s2, loading="frame")
     )
     ShearStage.objects.create(
@@ -159,9 +161,11 @@ def test_stage_numbers_unique_per_test_and_lever_loading_complete(
 
 
 def test_box_geometry_positive_and_consistent(records_a: Records, cast: Cast) -> None:
-    _refused(lambda: _test(records_a, cast, box_length_mm=0.0))
-    _refused(lambda: _test(records_a, cast, box_shape="circular"))  # width given for a circular box
-    _refused(lambda: _test(records_a, cast, box_width_mm=None))
+    _assert_refused(lambda: _test(records_a, cast, box_length_mm=0.0))
+    _assert_refused(
+        lambda: _test(records_a, cast, box_shape="circular")
+    )  # width given for a circular box
+    _assert_refused(lambda: _test(records_a, cast, box_width_mm=None))
     _test(
         records_a,
         cast,
@@ -175,11 +179,11 @@ def test_box_geometry_positive_and_consistent(records_a: Records, cast: Cast) ->
 def test_a_person_is_staff_or_client_never_both(cast: Cast) -> None:
     profile = LabProfile.objects.get(user=cast.client_a)
     profile.is_checker = True
-    _refused(lambda: profile.save())
+    _assert_refused(lambda: profile.save())
 
 
 def test_sample_event_must_move_and_is_append_only(records_a: Records, cast: Cast) -> None:
-    _refused(
+    _assert_refused(
         lambda: SampleEvent.objects.create(
             sample=records_a.sample,
             at=records_a.sample.status_changed_at,

@@ -50,11 +50,11 @@ class Rig:
     worker: subprocess.Popen[bytes] | None = None
     workers_started: int = 0
 
-    def driver(self, *args: str, timeout: float = 120) -> dict[str, Any]:
+    def driver(self, *args: str, timeout: float = 120, **env: str) -> dict[str, Any]:
         result = subprocess.run(
             [sys.executable, "-m", "tests.support.jobs_driver", *args],
             cwd=ROOT,
-            env=self.env,
+            env={**self.env, **env},
             capture_output=True,
             text=True,
             timeout=timeout,
@@ -119,7 +119,8 @@ def rig(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Rig]:
         rig = Rig(env=env, procs=procs, tmp=tmp, redis_port=port)
         try:
             manage(env, "migrate", "--noinput")
-            rig.driver("setup", str(EXTRA_SETS), timeout=300)
+            # The scenario (and the demo's issued report) is built in-process, before any broker exists.
+            rig.driver("setup", str(EXTRA_SETS), timeout=300, REDIS_URL="")
             rig.redis = start_redis(procs, tmp, port)
             rig.start_worker()
             yield rig

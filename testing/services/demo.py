@@ -11,6 +11,7 @@ import math
 from dataclasses import dataclass
 from datetime import datetime, timedelta
 from decimal import Decimal
+from typing import Any
 
 from django.conf import settings
 from django.contrib.auth import get_user_model
@@ -368,12 +369,61 @@ def load_demo(*, now: datetime | None = None) -> bool:
     return True
 
 
+_SPECIMEN_HEIGHT_MM = 20.0
+
+
 def _specimen_masses(
     height_mm: float, dry_density: float, water_content: float
 ) -> tuple[float, float]:
     volume_cm3 = _BOX_MM * _BOX_MM * height_mm / 1000.0
     dry_g = dry_density * volume_cm3
     return round(dry_g * (1 + water_content), 2), round(dry_g, 2)
+
+
+def _lever_stage(
+    *,
+    user: User,
+    test: DirectShearTest,
+    sample: Sample,
+    number: int,
+    sigma: float,
+    dry_density: float,
+    water_content: float,
+    final_ratio: float,
+    specimen: dict[str, Any],
+    stage: dict[str, Any],
+) -> ShearStage:
+    """One 60 mm × 20 mm specimen and its lever-loaded stage at about ``sigma`` [kPa].
+
+    ``specimen`` and ``stage`` carry what differs between the demo's soils (preparation, depth,
+    particle data; force device, rate, dates).
+    """
+    height = _SPECIMEN_HEIGHT_MM
+    initial, dry = _specimen_masses(height, dry_density, water_content)
+    created = specimen_create(
+        user=user,
+        sample=sample,
+        reference=f"S{number}",
+        length_mm=_BOX_MM,
+        width_mm=_BOX_MM,
+        height_mm=height,
+        initial_mass_g=initial,
+        dry_mass_g=dry,
+        final_mass_g=round(dry * final_ratio, 2),
+        description=sample.description,
+        **specimen,
+    )
+    return stage_create(
+        user=user,
+        test=test,
+        specimen=created,
+        stage_number=number,
+        direct_mass_kg=_DIRECT_MASS_KG,
+        hanger_mass_kg=_HANGER_MASS_KG,
+        weights_mass_kg=_weights_for(sigma),
+        lever_ratio=_LEVER_RATIO,
+        **stage,
+    )
 
 
 def _sand_set(
@@ -394,44 +444,34 @@ def _sand_set(
         instructions="Peak and ultimate strength, recompacted to 95 % of maximum dry density.",
     )
     for number, sigma in enumerate(_NORMAL_STRESSES_KPA, start=1):
-        height = 20.0
-        initial, dry = _specimen_masses(height, 1.74 + 0.005 * number, 0.11)
-        specimen = specimen_create(
-            user=user,
-            sample=sample,
-            reference=f"S{number}",
-            depth_top_m=sample.depth_top_m,
-            preparation="recompacted",
-            target_dry_density_mg_m3=Decimal("1.750"),
-            length_mm=_BOX_MM,
-            width_mm=_BOX_MM,
-            height_mm=height,
-            initial_mass_g=initial,
-            dry_mass_g=dry,
-            final_mass_g=round(dry * 1.19, 2),
-            max_particle_size_mm=2.0,
-            particle_density_mg_m3=2.65,
-            particle_density_assumed=True,
-            description=sample.description,
-        )
-        stage = stage_create(
+        stage = _lever_stage(
             user=user,
             test=test,
-            specimen=specimen,
-            stage_number=number,
-            direct_mass_kg=_DIRECT_MASS_KG,
-            hanger_mass_kg=_HANGER_MASS_KG,
-            weights_mass_kg=_weights_for(sigma),
-            lever_ratio=_LEVER_RATIO,
-            force_unit=ForceUnit.DIVISIONS,
-            force_factor_n_per_unit=_RING_CONSTANT_N_PER_DIV,
-            rate_mm_per_min=params.rate_mm_per_min,
+            sample=sample,
+            number=number,
+            sigma=sigma,
+            dry_density=1.74 + 0.005 * number,
+            water_content=0.11,
+            final_ratio=1.19,
+            specimen={
+                "depth_top_m": sample.depth_top_m,
+                "preparation": "recompacted",
+                "target_dry_density_mg_m3": Decimal("1.750"),
+                "max_particle_size_mm": 2.0,
+                "particle_density_mg_m3": 2.65,
+                "particle_density_assumed": True,
+            },
+            stage={
+                "force_unit": ForceUnit.DIVISIONS,
+                "force_factor_n_per_unit": _RING_CONSTANT_N_PER_DIV,
+                "rate_mm_per_min": params.rate_mm_per_min,
+            },
         )
         _store_readings(
             stage,
             "dense_sand",
             sigma,
-            height,
+            _SPECIMEN_HEIGHT_MM,
             seed=100 + number,
             ring=_RING_CONSTANT_N_PER_DIV,
             user=user,
@@ -455,39 +495,31 @@ def _clay_set(*, project: Project, sample: Sample, user: User, now: datetime) ->
         instructions="Drained peak strength on undisturbed specimens.",
     )
     for number, sigma in enumerate(_NORMAL_STRESSES_KPA, start=1):
-        height = 20.0
-        initial, dry = _specimen_masses(height, 1.52 - 0.004 * number, 0.29)
-        specimen = specimen_create(
-            user=user,
-            sample=sample,
-            reference=f"S{number}",
-            depth_top_m=sample.depth_top_m + Decimal("0.05") * number,
-            preparation="undisturbed",
-            length_mm=_BOX_MM,
-            width_mm=_BOX_MM,
-            height_mm=height,
-            initial_mass_g=initial,
-            dry_mass_g=dry,
-            final_mass_g=round(dry * 1.27, 2),
-            max_particle_size_mm=0.5,
-            particle_density_mg_m3=2.70,
-            particle_density_assumed=False,
-            description=sample.description,
-        )
-        stage = stage_create(
+        stage = _lever_stage(
             user=user,
             test=test,
-            specimen=specimen,
-            stage_number=number,
-            direct_mass_kg=_DIRECT_MASS_KG,
-            hanger_mass_kg=_HANGER_MASS_KG,
-            weights_mass_kg=_weights_for(sigma),
-            lever_ratio=_LEVER_RATIO,
-            force_unit=ForceUnit.NEWTON,
-            force_factor_n_per_unit=1.0,
-            rate_mm_per_min=params.rate_mm_per_min,
+            sample=sample,
+            number=number,
+            sigma=sigma,
+            dry_density=1.52 - 0.004 * number,
+            water_content=0.29,
+            final_ratio=1.27,
+            specimen={
+                "depth_top_m": sample.depth_top_m + Decimal("0.05") * number,
+                "preparation": "undisturbed",
+                "max_particle_size_mm": 0.5,
+                "particle_density_mg_m3": 2.70,
+                "particle_density_assumed": False,
+            },
+            stage={
+                "force_unit": ForceUnit.NEWTON,
+                "force_factor_n_per_unit": 1.0,
+                "rate_mm_per_min": params.rate_mm_per_min,
+            },
         )
-        _store_readings(stage, "clay", sigma, height, seed=200 + number, ring=None, user=user)
+        _store_readings(
+            stage, "clay", sigma, _SPECIMEN_HEIGHT_MM, seed=200 + number, ring=None, user=user
+        )
     return test
 
 
@@ -632,44 +664,34 @@ def _logger_set(
         instructions="Drained peak strength; readings from the data logger.",
     )
     for number, sigma in enumerate(_NORMAL_STRESSES_KPA, start=1):
-        height = 20.0
-        initial, dry = _specimen_masses(height, 1.60 - 0.004 * number, 0.24)
-        specimen = specimen_create(
-            user=user,
-            sample=sample,
-            reference=f"S{number}",
-            depth_top_m=sample.depth_top_m + Decimal("0.05") * number,
-            preparation="undisturbed",
-            length_mm=_BOX_MM,
-            width_mm=_BOX_MM,
-            height_mm=height,
-            initial_mass_g=initial,
-            dry_mass_g=dry,
-            final_mass_g=round(dry * 1.22, 2),
-            max_particle_size_mm=2.0,
-            particle_density_mg_m3=2.68,
-            particle_density_assumed=True,
-            description=sample.description,
-        )
-        stage = stage_create(
+        stage = _lever_stage(
             user=user,
             test=test,
-            specimen=specimen,
-            stage_number=number,
-            direct_mass_kg=_DIRECT_MASS_KG,
-            hanger_mass_kg=_HANGER_MASS_KG,
-            weights_mass_kg=_weights_for(sigma),
-            lever_ratio=_LEVER_RATIO,
-            force_unit=ForceUnit.NEWTON,
-            rate_mm_per_min=params.rate_mm_per_min,
-            consolidation_started_at=tested_on + timedelta(hours=4 * number),
-            shear_started_at=tested_on + timedelta(hours=4 * number + 2),
+            sample=sample,
+            number=number,
+            sigma=sigma,
+            dry_density=1.60 - 0.004 * number,
+            water_content=0.24,
+            final_ratio=1.22,
+            specimen={
+                "depth_top_m": sample.depth_top_m + Decimal("0.05") * number,
+                "preparation": "undisturbed",
+                "max_particle_size_mm": 2.0,
+                "particle_density_mg_m3": 2.68,
+                "particle_density_assumed": True,
+            },
+            stage={
+                "force_unit": ForceUnit.NEWTON,
+                "rate_mm_per_min": params.rate_mm_per_min,
+                "consolidation_started_at": tested_on + timedelta(hours=4 * number),
+                "shear_started_at": tested_on + timedelta(hours=4 * number + 2),
+            },
         )
         stage_calibration_link(user=user, stage=stage, device=cell)
         cons = consolidation_readings(
             seed=300 + number,
             normal_stress_kpa=sigma,
-            height_mm=height,
+            height_mm=_SPECIMEN_HEIGHT_MM,
             t50_min=params.t50_min,
             final_settlement_mm=params.settlement_per_100_kpa_mm * sigma / 100.0,
         )

@@ -442,13 +442,14 @@ def _execute_stage(run: ComputationRun, token: str) -> None:
     inputs_hash = inputs.digest()
     _progress(run, token, 20)
     reused = _reusable(run, inputs_hash)
-    context = stage_context_build(stage, inputs)
-    reduction = None if reused else stage_reduction_compute(stage, inputs, context)
+    # A reused result needs neither the context (consolidation fits, phase relations) nor the core.
+    context = None if reused else stage_context_build(stage, inputs)
+    reduction = None if context is None else stage_reduction_compute(stage, inputs, context)
     _progress(run, token, 80)
     with transaction.atomic():
         if not _lock_claim(run, token):
             return  # another delivery took over after our lease ran out; it will store the result
-        if reduction is not None:
+        if reduction is not None and context is not None:
             stage_result_store(
                 run=run,
                 stage=stage,

@@ -48,7 +48,7 @@ class TestSetViewSet(CreateViaServiceMixin, RecordViewSet):
             runs = computation.test_recompute_request(
                 test=test, user=self.acting_user, reason=serializer.validated_data["reason"]
             )
-        return Response(rs.ComputationRunOut(runs, many=True).data, status=status.HTTP_202_ACCEPTED)
+        return Response(rs.RecomputeOut({"runs": runs}).data, status=status.HTTP_202_ACCEPTED)
 
 
 @extend_schema_view(create=extend_schema(request=s.StageIn, responses={201: s.StageOut}))

@@ -10,7 +10,7 @@ from __future__ import annotations
 import logging
 from collections.abc import Sequence
 from datetime import datetime
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from django.conf import settings
 from django.contrib.auth.models import User
@@ -24,6 +24,7 @@ from reports.models import (
     ReportRevision,
     RevisionChange,
     RevisionState,
+    SigningCertificate,
     SignOff,
     SignOffMeaning,
 )
@@ -37,6 +38,9 @@ from testing import access
 from testing.models import DirectShearTest, Project
 from testing.services.errors import NotAllowed, ServiceError
 from testing.services.release import test_mark_released
+
+if TYPE_CHECKING:
+    from reports.signing import CertificateInfo
 
 logger = logging.getLogger(__name__)
 
@@ -426,6 +430,22 @@ def revision_issue(*, user: User, revision: ReportRevision, password: str | None
     return current
 
 
+def _certificate_record(info: CertificateInfo, *, at: datetime) -> SigningCertificate:
+    """The lab certificate that signed a revision, recorded the first time it is used."""
+    certificate, _ = SigningCertificate.objects.get_or_create(
+        sha256_fingerprint=info.sha256_fingerprint,
+        defaults={
+            "pem": info.pem,
+            "subject": info.subject[:300],
+            "serial_number": info.serial_number,
+            "not_valid_before": info.not_valid_before,
+            "not_valid_after": info.not_valid_after,
+            "first_used_at": at,
+        },
+    )
+    return certificate
+
+
 def revision_issue_complete(*, revision_id: int) -> ReportRevision | None:
     """Render, sign and store the PDF of a revision being issued. Safe to run twice."""
     from reports import signing
@@ -441,11 +461,12 @@ def revision_issue_complete(*, revision_id: int) -> ReportRevision | None:
         return None  # already issued, or sent back: nothing to do
     try:
         html = render_report_html(revision, issuing=True)
-        pdf_bytes = signing.sign_pdf(
+        signed = signing.sign_pdf_recorded(
             html_to_pdf(html),
             reason=f"Issued {revision.label}",
             signer_name=actor_name(revision.issued_by),
         )
+        pdf_bytes = signed.pdf
     except Exception as exc:
         logger.exception("rendering %s failed", revision.label)
         ReportRevision.objects.filter(pk=revision.pk, state=RevisionState.ISSUING).update(
@@ -491,7 +512,17 @@ def revision_issue_complete(*, revision_id: int) -> ReportRevision | None:
         mine.pdf_size_bytes = len(pdf_bytes)
         mine.issued_at = now
         mine.state = RevisionState.ISSUED
-        mine.save(update_fields=["pdf", "pdf_sha256", "pdf_size_bytes", "issued_at", "state"])
+        mine.signing_certificate = _certificate_record(signed.certificate, at=now)
+        mine.save(
+            update_fields=[
+                "pdf",
+                "pdf_sha256",
+                "pdf_size_bytes",
+                "issued_at",
+                "state",
+                "signing_certificate",
+            ]
+        )
         assert mine.issued_by is not None and mine.issue_requested_at is not None
         SignOff.objects.create(
             revision=mine,

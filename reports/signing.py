@@ -120,11 +120,14 @@ def _ensure_keys() -> tuple[Path, Path]:
     return key_path, cert_path
 
 
+def _asn1_certificate(pem: bytes) -> asn1_x509.Certificate:
+    der = x509.load_pem_x509_certificate(pem).public_bytes(serialization.Encoding.DER)
+    return asn1_x509.Certificate.load(der)
+
+
 def lab_certificate() -> asn1_x509.Certificate:
     _, cert_path = _ensure_keys()
-    data = cert_path.read_bytes()
-    der = x509.load_pem_x509_certificate(data).public_bytes(serialization.Encoding.DER)
-    return asn1_x509.Certificate.load(der)
+    return _asn1_certificate(cert_path.read_bytes())
 
 
 def _off_the_event_loop(fn: Callable[..., T], *args: Any, **kwargs: Any) -> T:
@@ -139,12 +142,50 @@ def _off_the_event_loop(fn: Callable[..., T], *args: Any, **kwargs: Any) -> T:
         return pool.submit(fn, *args, **kwargs).result()
 
 
+@dataclass(frozen=True)
+class CertificateInfo:
+    """The public facts of a signing certificate, as recorded beside each issued revision."""
+
+    pem: str
+    sha256_fingerprint: str
+    subject: str
+    serial_number: str
+    not_valid_before: dt.datetime
+    not_valid_after: dt.datetime
+
+
+def certificate_info(pem: str | bytes) -> CertificateInfo:
+    """Fingerprint (sha256 of the DER form), subject and validity of a PEM certificate."""
+    data = pem.encode("ascii") if isinstance(pem, str) else pem
+    cert = x509.load_pem_x509_certificate(data)
+    return CertificateInfo(
+        pem=cert.public_bytes(serialization.Encoding.PEM).decode("ascii"),
+        sha256_fingerprint=cert.fingerprint(hashes.SHA256()).hex(),
+        subject=cert.subject.rfc4514_string(),
+        serial_number=format(cert.serial_number, "x"),
+        not_valid_before=cert.not_valid_before_utc,
+        not_valid_after=cert.not_valid_after_utc,
+    )
+
+
+@dataclass(frozen=True)
+class SignedPdf:
+    pdf: bytes
+    certificate: CertificateInfo  # the certificate that made this signature
+
+
 def sign_pdf(pdf: bytes, *, reason: str, signer_name: str) -> bytes:
     """PAdES B-B signature over the whole PDF with the lab's key."""
+    return sign_pdf_recorded(pdf, reason=reason, signer_name=signer_name).pdf
+
+
+def sign_pdf_recorded(pdf: bytes, *, reason: str, signer_name: str) -> SignedPdf:
+    """As :func:`sign_pdf`, also naming the certificate used (read once, with the key), so it can
+    be recorded and later verified against even after the lab renews its certificate."""
     return _off_the_event_loop(_sign_pdf, pdf, reason=reason, signer_name=signer_name)
 
 
-def _sign_pdf(pdf: bytes, *, reason: str, signer_name: str) -> bytes:
+def _sign_pdf(pdf: bytes, *, reason: str, signer_name: str) -> SignedPdf:
     key_path, cert_path = _ensure_keys()
     signer = signers.SimpleSigner.load(str(key_path), str(cert_path))
     if signer is None:
@@ -162,7 +203,9 @@ def _sign_pdf(pdf: bytes, *, reason: str, signer_name: str) -> bytes:
     writer = IncrementalPdfFileWriter(io.BytesIO(pdf))
     out = io.BytesIO()
     signers.PdfSigner(meta, signer=signer).sign_pdf(writer, output=out)
-    return out.getvalue()
+    der = signer.signing_cert.dump()
+    pem = x509.load_der_x509_certificate(der).public_bytes(serialization.Encoding.PEM)
+    return SignedPdf(pdf=out.getvalue(), certificate=certificate_info(pem))
 
 
 @dataclass(frozen=True)
@@ -182,12 +225,19 @@ class SignatureCheck:
         return self.signed and self.intact and self.trusted and self.covers_whole_file
 
 
-def verify_pdf(pdf: bytes) -> SignatureCheck:
-    """Check the lab signature of a PDF against the lab's own certificate, offline."""
-    return _off_the_event_loop(_verify_pdf, pdf)
+def verify_pdf(pdf: bytes, *, trusted_pem: str | None = None) -> SignatureCheck:
+    """Check the lab signature of a PDF offline: against ``trusted_pem`` (the certificate recorded
+    for the revision) when given, else against the lab's current certificate."""
+    return _off_the_event_loop(_verify_pdf, pdf, trusted_pem)
 
 
-def _verify_pdf(pdf: bytes) -> SignatureCheck:
+def _trust_root(trusted_pem: str | None) -> asn1_x509.Certificate:
+    if trusted_pem is None:
+        return lab_certificate()
+    return _asn1_certificate(trusted_pem.encode("ascii"))
+
+
+def _verify_pdf(pdf: bytes, trusted_pem: str | None = None) -> SignatureCheck:
     try:
         reader = PdfFileReader(io.BytesIO(pdf), strict=False)
         signatures = reader.embedded_signatures
@@ -197,7 +247,7 @@ def _verify_pdf(pdf: bytes) -> SignatureCheck:
         return SignatureCheck(signed=False, problem="The PDF carries no signature.")
     sig = signatures[-1]
     try:
-        context = ValidationContext(trust_roots=[lab_certificate()], allow_fetching=False)
+        context = ValidationContext(trust_roots=[_trust_root(trusted_pem)], allow_fetching=False)
         status = validate_pdf_signature(sig, context)
     except Exception as exc:
         return SignatureCheck(

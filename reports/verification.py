@@ -1,7 +1,10 @@
 """Is this PDF an authentic Tauline revision, which one, and is it current?
 
 Authentic means both: its sha256 matches an issued revision's stored PDF, and its embedded lab
-signature is intact and trusted. Either failing is reported as not authentic.
+signature is intact and trusted by the lab certificate recorded for that revision when it was
+signed (so revisions signed before the lab renewed its certificate still verify). Revisions
+issued before certificates were recorded are checked against the current lab certificate.
+Either failing is reported as not authentic.
 """
 
 from __future__ import annotations
@@ -38,7 +41,7 @@ class Verification:
 def _issued(sha256: str) -> ReportRevision | None:
     return (
         ReportRevision.objects.filter(pdf_sha256=sha256, issued_at__isnull=False)
-        .select_related("report")
+        .select_related("report", "signing_certificate")
         .first()
     )
 
@@ -52,18 +55,23 @@ def _describe(revision: ReportRevision, replaced_by: ReportRevision | None) -> s
     return f"valid: authentic {revision.label}, but withdrawn: {revision.withdrawn_reason}"
 
 
+def revision_signature_check(revision: ReportRevision, data: bytes) -> signing.SignatureCheck:
+    """The PDF's signature checked against the certificate that signed this revision."""
+    certificate = revision.signing_certificate
+    return signing.verify_pdf(data, trusted_pem=certificate.pem if certificate else None)
+
+
 def verify_pdf_bytes(data: bytes) -> Verification:
     sha = signing.sha256_hex(data)
     revision = _issued(sha)
-    check = signing.verify_pdf(data)
     if revision is None:
         return Verification(
             authentic=False,
             sha256=sha,
-            signature=check,
             message="not valid: this file is not an issued revision of this laboratory "
             "(its fingerprint matches none). It may have been changed.",
         )
+    check = revision_signature_check(revision, data)
     if not check.valid:
         return Verification(
             authentic=False,

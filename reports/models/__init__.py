@@ -1,6 +1,7 @@
 """Reports, their revisions and sign-offs, and the append-only audit trail."""
 
 from reports.models.audit import AuditEvent
+from reports.models.certificates import SigningCertificate
 from reports.models.reports import (
     ACTIVE_STATES,
     Report,
@@ -19,4 +20,5 @@ __all__ = [
     "RevisionState",
     "SignOff",
     "SignOffMeaning",
+    "SigningCertificate",
 ]

@@ -45,7 +45,13 @@ IMMUTABLE_AFTER_ISSUE = (
     "title",
     "remarks",
     "deviations",
+    "signing_certificate",
 )
+
+
+def _column(name: str) -> str:
+    """The attribute holding a field's stored value (the id, for a foreign key)."""
+    return f"{name}_id" if name.endswith("_by") or name == "signing_certificate" else name
 
 
 class Report(models.Model):
@@ -128,6 +134,15 @@ class ReportRevision(models.Model):
     pdf = models.FileField(upload_to=_pdf_path, blank=True)
     pdf_sha256 = models.CharField(max_length=64, blank=True, db_index=True)
     pdf_size_bytes = models.PositiveIntegerField(null=True, blank=True)
+    signing_certificate = models.ForeignKey(
+        "reports.SigningCertificate",
+        on_delete=models.PROTECT,
+        null=True,
+        blank=True,
+        related_name="revisions",
+        help_text="The lab certificate that signed the PDF (empty for revisions issued before "
+        "certificates were recorded: those verify against the current one).",
+    )
 
     class Meta:
         ordering = ["report", "-number"]
@@ -211,14 +226,12 @@ class ReportRevision(models.Model):
             stored = (
                 type(self)
                 .objects.filter(pk=self.pk)
-                .values(
-                    "state", *[f"{f}_id" if f.endswith("_by") else f for f in IMMUTABLE_AFTER_ISSUE]
-                )
+                .values("state", *[_column(f) for f in IMMUTABLE_AFTER_ISSUE])
                 .first()
             )
             if stored is not None and stored["state"] in FROZEN_STATES:
                 for name in IMMUTABLE_AFTER_ISSUE:
-                    key = f"{name}_id" if name.endswith("_by") else name
+                    key = _column(name)
                     current = getattr(self, key)
                     if name == "pdf":
                         current = self.pdf.name or ""

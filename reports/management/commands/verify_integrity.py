@@ -3,7 +3,7 @@
 For each revision that was ever issued (current, superseded or withdrawn after issue):
 
 - the stored PDF exists, its sha256 and size match the database, and its embedded lab signature
-  validates against the lab certificate (``reports.signing``);
+  validates against the lab certificate that signed it (``reports.verification``);
 - the frozen content still hashes to ``content_sha256``;
 - the sign-offs (checked, approved, issued) exist, are by the recorded people and bind this
   content (and, for the issue, this PDF);
@@ -33,6 +33,7 @@ from reports.models import (
     SignOffMeaning,
 )
 from reports.rendering.context import content_sha256
+from reports.verification import revision_signature_check
 
 # Workflow steps every issued revision went through, in order: (audit action, revision field
 # holding the person who had to do it).
@@ -72,7 +73,7 @@ def _pdf_problems(revision: ReportRevision, check_signature: bool) -> list[str]:
             f"stored PDF is {len(data)} bytes, the record says {revision.pdf_size_bytes}"
         )
     if check_signature:
-        check = signing.verify_pdf(data)
+        check = revision_signature_check(revision, data)
         if not check.valid:
             problems.append(f"the lab signature does not validate: {check.problem}")
     return problems
@@ -179,7 +180,9 @@ class Command(BaseCommand):
                 )
 
         revisions = list(
-            ReportRevision.objects.select_related("report").order_by("report_id", "number")
+            ReportRevision.objects.select_related("report", "signing_certificate").order_by(
+                "report_id", "number"
+            )
         )
         subjects = [f"revision:{r.pk}" for r in revisions]
         events: dict[str, list[AuditEvent]] = defaultdict(list)

@@ -1,7 +1,10 @@
 """Admin for every lab record: list filters and search where a lab looks things up.
 
 Lifecycle state and events are read-only here: they change only through the lifecycle service,
-which writes the append-only event.
+which writes the append-only event. Specimens, stages and readings are read-only too: a change to
+them may need a reason and a new computation once there are results, and readings changes are
+logged in bulk, so they change only through the staff pages and their services
+(``testing.services.edits``, ``shear_setup``), never around them.
 """
 
 from __future__ import annotations
@@ -11,6 +14,7 @@ from typing import Any
 from django.contrib import admin
 from django.http import HttpRequest
 
+from testing.admin_results import ReadOnlyAdmin
 from testing.models import (
     Borehole,
     ConsolidationReading,
@@ -117,7 +121,7 @@ class SampleEventAdmin(admin.ModelAdmin[SampleEvent]):
 
 
 @admin.register(Specimen)
-class SpecimenAdmin(admin.ModelAdmin[Specimen]):
+class SpecimenAdmin(ReadOnlyAdmin):
     list_display = ("reference", "sample", "preparation", "shape", "height_mm", "initial_mass_g")
     list_filter = ("preparation", "shape", "particle_density_assumed")
     search_fields = ("reference", "sample__reference", "description")
@@ -137,6 +141,14 @@ class ShearStageInline(admin.TabularInline[ShearStage, DirectShearTest]):
         "rate_mm_per_min",
     )
     raw_id_fields = ("specimen",)
+    readonly_fields = fields
+    can_delete = False
+
+    def has_add_permission(self, request: HttpRequest, obj: Any = None) -> bool:
+        return False
+
+    def has_change_permission(self, request: HttpRequest, obj: Any = None) -> bool:
+        return False
 
 
 @admin.register(DirectShearTest)
@@ -160,7 +172,7 @@ class DirectShearTestAdmin(admin.ModelAdmin[DirectShearTest]):
 
 
 @admin.register(ShearStage)
-class ShearStageAdmin(admin.ModelAdmin[ShearStage]):
+class ShearStageAdmin(ReadOnlyAdmin):
     list_display = ("test", "stage_number", "specimen", "loading", "rate_mm_per_min", "traverses")
     list_filter = ("loading", "force_unit", "test__method")
     search_fields = ("test__reference", "specimen__reference", "test__project__reference")
@@ -169,7 +181,7 @@ class ShearStageAdmin(admin.ModelAdmin[ShearStage]):
 
 
 @admin.register(ConsolidationReading)
-class ConsolidationReadingAdmin(admin.ModelAdmin[ConsolidationReading]):
+class ConsolidationReadingAdmin(ReadOnlyAdmin):
     list_display = ("stage", "elapsed_min", "settlement_mm")
     list_filter = ("stage__test",)
     search_fields = ("stage__test__reference",)
@@ -177,7 +189,7 @@ class ConsolidationReadingAdmin(admin.ModelAdmin[ConsolidationReading]):
 
 
 @admin.register(ShearReading)
-class ShearReadingAdmin(admin.ModelAdmin[ShearReading]):
+class ShearReadingAdmin(ReadOnlyAdmin):
     list_display = (
         "stage",
         "traverse",
@@ -192,8 +204,9 @@ class ShearReadingAdmin(admin.ModelAdmin[ShearReading]):
     list_select_related = ("stage__test__project",)
 
 
-# Imported for their registrations: the equipment register and imports; runs and results (read-only).
-from testing import admin_equipment, admin_results  # noqa: E402, F401
+# Imported for their registrations: the equipment register and imports (runs and results, read-only,
+# are registered by the import of ReadOnlyAdmin above).
+from testing import admin_equipment  # noqa: E402, F401
 
 # isort: split
 # Last: adds the history pages to the admins registered above.

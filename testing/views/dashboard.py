@@ -45,11 +45,25 @@ def weekly_figure(weeks: Sequence[WeekRow]) -> Figure:
                 "hovertemplate": "Week of %{x}<br>%{y} samples reported<extra></extra>",
             },
         ],
-        "layout": _integer_axis(
-            layout_for("Week starting (Monday)", "Samples (count)", barmode="group"),
-            max([w.received for w in weeks] + [w.reported for w in weeks] + [1]),
+        "layout": _week_ticks(
+            _integer_axis(
+                layout_for("Week starting (Monday)", "Samples (count)", barmode="group"),
+                max([w.received for w in weeks] + [w.reported for w in weeks] + [1]),
+            ),
+            weeks,
         ),
     }
+
+
+def _week_ticks(layout: dict[str, Any], weeks: Sequence[WeekRow]) -> dict[str, Any]:
+    """Tick each bar group at its own Monday (a date axis would otherwise pick Sundays), every
+    other week when there are many, labelled "14 Sep"."""
+    step = 2 if len(weeks) > 8 else 1
+    shown = list(weeks)[::step]
+    layout["xaxis"]["tickmode"] = "array"
+    layout["xaxis"]["tickvals"] = [w.week_start.isoformat() for w in shown]
+    layout["xaxis"]["ticktext"] = [f"{w.week_start.day} {w.week_start:%b}" for w in shown]
+    return layout
 
 
 def backlog_figure(dashboard: Dashboard) -> Figure:

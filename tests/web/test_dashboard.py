@@ -130,3 +130,18 @@ def test_percentile_linear_matches_numpy() -> None:
     values = [3.0, 7.0, 8.0, 15.0, 21.0, 22.0, 40.0]
     for q in (0.0, 0.1, 0.5, 0.9, 1.0):
         assert percentile_linear(values, q) == pytest.approx(float(np.percentile(values, 100 * q)))
+
+
+def test_weekly_chart_ticks_sit_on_the_mondays_that_start_each_week() -> None:
+    """Each bar group is a week starting on a Monday (ISO 8601 week); its tick must name that
+    Monday, not the Sunday a date axis would choose by default."""
+    from testing.selectors_dashboard import WeekRow
+    from testing.views.dashboard import weekly_figure
+
+    first = date(2026, 9, 14)
+    weeks = [WeekRow(first + timedelta(weeks=i), i, 0) for i in range(12)]
+    xaxis = weekly_figure(weeks)["layout"]["xaxis"]
+    ticks = [date.fromisoformat(v) for v in xaxis["tickvals"]]
+    assert ticks and all(t.isoweekday() == 1 for t in ticks)  # Monday = 1 (ISO 8601)
+    assert set(ticks) <= {w.week_start for w in weeks}
+    assert xaxis["ticktext"][0] == "14 Sep"

@@ -35,6 +35,7 @@ from testing.importers.readings import (
     Preview,
     RowError,
     _validate_rows,
+    check_force_unit,
     parse_readings,
     preview_readings,
 )
@@ -508,7 +509,6 @@ _MANUAL_LAYOUT_COLUMNS = {
     "phase": ColumnMap("phase"),
     "traverse": ColumnMap("traverse"),
 }
-_MANUAL_KEYS = ("phase", "traverse", "time_min", "horizontal_mm", "vertical_mm", "force")
 
 
 def _manual_layout(stage: ShearStage) -> Layout:
@@ -519,31 +519,79 @@ def _manual_layout(stage: ShearStage) -> Layout:
     )
 
 
+def validate_row_objects(
+    stage: ShearStage, rows: Sequence[object], layout: Layout = CANONICAL_LAYOUT
+) -> ParsedReadings:
+    """Check rows given as objects keyed by ``layout``'s column names with the importer's rules
+    (the force unit must match the stage's, as for a file). A missing ``phase`` means shear, a
+    missing ``traverse`` 1; anything that is not an object is a bad row. Row numbers in errors
+    count the rows from 1."""
+    result = ParsedReadings()
+    check_force_unit(layout, _stage_force_unit(stage), result)
+    if not result.ok:
+        return result
+    quantities = list(layout.columns)
+    columns = {q: i for i, q in enumerate(quantities)}
+    names = [layout.columns[q].column for q in quantities]
+    defaults = {"phase": "shear", "traverse": 1}
+    cells: list[tuple[int, list[object]]] = []
+    for number, row in enumerate(rows, start=1):
+        if not isinstance(row, Mapping):
+            result.add_error(
+                RowError(number, "(row)", str(row)[:60], "a row must be an object of column: value")
+            )
+            continue
+        values: list[object] = []
+        for q, name in zip(quantities, names, strict=True):
+            value = row.get(name)
+            values.append(defaults[q] if value in (None, "") and q in defaults else value)
+        cells.append((number, values))
+    _validate_rows(cells, columns, layout, None, result)
+    if result.ok and result.rows_read == 0:
+        result.add_error(RowError(1, "(row)", "", "no readings were given"))
+    return result
+
+
 def validate_manual_rows(stage: ShearStage, rows: Sequence[Mapping[str, object]]) -> ParsedReadings:
     """Check grid rows with the importer's rules. Each row: ``phase`` (consolidation/shear,
     default shear), ``time_min``, ``horizontal_mm``, ``vertical_mm`` (upward positive),
     ``force`` (divisions or N, as the stage records) and optionally ``traverse``. Row numbers in
     errors count grid rows from 1."""
-    layout = _manual_layout(stage)
-    columns = {
-        q: i for i, q in enumerate(("phase", "traverse", "time", "horizontal", "vertical", "force"))
-    }
-    result = ParsedReadings()
-    cells = (
-        (
-            number,
-            [
-                row.get("phase") or "shear",
-                row.get("traverse") if row.get("traverse") not in (None, "") else 1,
-                *(row.get(k) for k in _MANUAL_KEYS[2:]),
-            ],
+    return validate_row_objects(stage, rows, _manual_layout(stage))
+
+
+def _store_rows(
+    *,
+    user: User,
+    stage: ShearStage,
+    rows: Sequence[object],
+    layout: Layout,
+    source: str,
+    reason: str,
+    why: str,
+) -> tuple[ParsedReadings, int]:
+    """Check ``rows`` (raising :class:`ReadingsRejected` with every bad row, nothing saved), then
+    replace the phases given in one transaction with the audit row and a reduction request.
+    Returns the readings and the number of rows replaced."""
+    _require_technician(user)
+    _require_open(stage)
+    parsed = validate_row_objects(stage, rows, layout)
+    if not parsed.ok:
+        raise ReadingsRejected(parsed.error_summary, parsed.errors)
+    with transaction.atomic():
+        locked = ShearStage.objects.select_for_update().get(pk=stage.pk)
+        before = readings_state(locked.pk)
+        replaced = _replace_readings(locked, parsed)
+        readings_change_record(
+            stage=locked,
+            user=user,
+            source=source,
+            before=before,
+            after=parsed_state(before, parsed),
+            reason=reason,
         )
-        for number, row in enumerate(rows, start=1)
-    )
-    _validate_rows(cells, columns, layout, None, result)
-    if result.ok and result.rows_read == 0:
-        result.add_error(RowError(1, "(row)", "", "no readings were entered"))
-    return result
+        request_stage_reduction(stage=locked, user=user, reason=why)
+    return parsed, replaced
 
 
 def stage_readings_enter(
@@ -551,25 +599,49 @@ def stage_readings_enter(
 ) -> tuple[int, int]:
     """Save readings typed on the entry grid, replacing the phases entered; returns the counts
     (consolidation, shear). Raises :class:`ReadingsRejected` listing every bad row (nothing saved)."""
-    _require_technician(user)
-    _require_open(stage)
-    parsed = validate_manual_rows(stage, rows)
-    if not parsed.ok:
-        raise ReadingsRejected(parsed.error_summary, parsed.errors)
-    with transaction.atomic():
-        locked = ShearStage.objects.select_for_update().get(pk=stage.pk)
-        before = readings_state(locked.pk)
-        _replace_readings(locked, parsed)
-        readings_change_record(
-            stage=locked,
-            user=user,
-            source=ReadingsSource.ENTERED,
-            before=before,
-            after=parsed_state(before, parsed),
-            reason=reason,
-        )
-        request_stage_reduction(stage=locked, user=user, reason="readings entered by hand")
+    parsed, _ = _store_rows(
+        user=user,
+        stage=stage,
+        rows=rows,
+        layout=_manual_layout(stage),
+        source=ReadingsSource.ENTERED,
+        reason=reason,
+        why="readings entered by hand",
+    )
     return int(parsed.consolidation_elapsed_min.size), int(parsed.shear_elapsed_min.size)
+
+
+@dataclass(frozen=True)
+class RowsStored:
+    consolidation_rows: int
+    shear_rows: int
+    replaced_rows: int
+
+
+def stage_readings_rows_import(
+    *,
+    user: User,
+    stage: ShearStage,
+    rows: Sequence[object],
+    layout: ImportLayout | None = None,
+    reason: str = "",
+) -> RowsStored:
+    """Save readings sent as rows (objects keyed by the layout's column names; the canonical CSV
+    layout by default), with the file importer's checks and its all-or-nothing rule: the phases
+    given replace the stage's readings of that phase. Raises :class:`ReadingsRejected` listing
+    every bad row (nothing saved)."""
+    parsed, replaced = _store_rows(
+        user=user,
+        stage=stage,
+        rows=rows,
+        layout=layout_for(layout),
+        source=ReadingsSource.STORED,
+        reason=reason,
+        why="readings sent as rows",
+    )
+    return RowsStored(
+        int(parsed.consolidation_elapsed_min.size), int(parsed.shear_elapsed_min.size), replaced
+    )
 
 
 @dataclass(frozen=True)

@@ -271,6 +271,13 @@ def stderr_friction_angle_deg(tan_phi: float | None, stderr_tan_phi: float | Non
     return math.degrees(stderr_tan_phi / (1.0 + tan_phi * tan_phi))
 
 
+def _warning_text(warning: Any) -> str:
+    """A stored quality flag (a dict with its message) or plain text, as a sentence."""
+    if isinstance(warning, dict):
+        return str(warning.get("message") or warning.get("code") or "")
+    return str(warning)
+
+
 def envelope_summary(envelope: dict[str, Any]) -> EnvelopeSummary:
     low, high = envelope["normal_stress_range_kpa"]
     return EnvelopeSummary(
@@ -288,7 +295,7 @@ def envelope_summary(envelope: dict[str, Any]) -> EnvelopeSummary:
         normal_stress_min_kpa=low,
         normal_stress_max_kpa=high,
         r_squared=envelope["r_squared"],
-        warnings=[str(w) for w in envelope.get("warnings", [])],
+        warnings=[_warning_text(w) for w in envelope.get("warnings", [])],
     )
 
 

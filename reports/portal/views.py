@@ -30,11 +30,12 @@ from testing.views.common import CAUTION
 _LAYOUT = {
     "title": None,
     "font": {"family": "system-ui, 'DejaVu Sans', sans-serif", "size": 13, "color": "#1c2733"},
-    "margin": {"l": 64, "r": 16, "t": 16, "b": 64},
+    "margin": {"l": 64, "r": 16, "t": 16, "b": 72},
     "paper_bgcolor": "#ffffff",
     "plot_bgcolor": "#fbfcfd",
-    "legend": {"orientation": "h", "y": -0.22, "yanchor": "top"},
+    "legend": {"orientation": "h", "x": 0, "y": -0.32, "yanchor": "top"},
     "hovermode": "closest",
+    "height": 480,
 }
 
 

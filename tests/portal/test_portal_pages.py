@@ -176,9 +176,9 @@ def test_strength_summary_equals_an_independent_fit_of_the_frozen_stage_results(
     text = body.content.decode()
     c, se_c, phi, se_phi = _cell_numbers(text, "Peak")[:4]
     assert c == pytest.approx(round(fit.intercept, 1), abs=0.051)
-    assert se_c == pytest.approx(round(fit.intercept_stderr, 1), abs=0.051)
+    assert se_c == pytest.approx(round(fit.intercept_stderr, 2), abs=0.0051)
     assert phi == pytest.approx(round(phi_deg, 1), abs=0.051)
-    assert se_phi == pytest.approx(round(se_phi_deg, 1), abs=0.051)
+    assert se_phi == pytest.approx(round(se_phi_deg, 2), abs=0.0051)
     n_cell = re.search(r"<th scope=\"row\">Peak.*?<td class=\"num count\">(\d+)</td>", text, re.S)
     assert n_cell is not None and int(n_cell.group(1)) == len(sigma) == 3
     assert f"{min(sigma):.0f}–{max(sigma):.0f} kPa" in text

@@ -1,8 +1,11 @@
-"""Render and sign a 3-stage report; compare with a bare WeasyPrint document of the same pages.
+"""Render and sign a 3-stage report; compare with a bare WeasyPrint document of the same pages
+and charts.
 
-Baseline: the same report HTML with each chart replaced by an empty box of the same size (same
-pages, same tables), rendered by WeasyPrint in the same run. Measured: build the charts (matplotlib
-SVG), render, and sign. Target: ratio <= 3 and the whole under 3 s.
+Baseline: WeasyPrint alone turning a finished copy of the report's HTML (same pages, tables and
+chart SVGs, built beforehand) into PDF, in the same run. Measured: everything issuing does — the
+queries of the context builder, the charts (matplotlib SVG), the HTML, WeasyPrint, and the PAdES
+signature. Target: ratio <= 1.5 and the whole under 3 s. The same HTML with each chart replaced
+by an empty box is also timed and printed, to show what the charts cost WeasyPrint.
 
 Run: .venv/bin/python benchmarks/bench_reports.py
 """
@@ -30,7 +33,7 @@ django.setup()
 
 from django.core.management import call_command  # noqa: E402
 
-TARGET_RATIO = 3.0
+TARGET_RATIO = 1.5
 TARGET_SECONDS = 3.0
 SMOKE = "--smoke" in sys.argv  # tiny sizes, no target: checks that the benchmark still runs
 REPEATS = 1 if SMOKE else 3
@@ -73,9 +76,12 @@ def main() -> int:
     )
 
     def bare() -> bytes:
+        return html_to_pdf(html)
+
+    def boxes() -> bytes:
         return html_to_pdf(bare_html)
 
-    full(), bare()  # warm up: fonts, imports
+    full(), bare(), boxes()  # warm up: fonts, imports
     if os.environ.get("BENCH_PROFILE"):
         from reports.rendering.charts import report_charts, to_svg
 
@@ -89,8 +95,11 @@ def main() -> int:
         print(
             f"charts {t1 - t0:.3f} s ({len(charts)}, {sum(map(len, charts))} chars); weasyprint {t2 - t1:.3f} s; sign {t3 - t2:.3f} s"
         )
-    full_times, bare_times = [], []
+    full_times, bare_times, box_times = [], [], []
     for _ in range(REPEATS):
+        t0 = time.perf_counter()
+        boxes()
+        box_times.append(time.perf_counter() - t0)
         t0 = time.perf_counter()
         pdf = full()
         full_times.append(time.perf_counter() - t0)
@@ -109,7 +118,8 @@ def main() -> int:
     ratio = value / baseline
     print(
         f"bench reports: {value:.3f} s; baseline {baseline:.3f} s; ratio {ratio:.2f} (target <= {TARGET_RATIO:g})"
-        f"  [render+charts+sign, {pages_full} pages vs bare WeasyPrint {pages_bare} pages]"
+        f"  [render+charts+sign, {pages_full} pages vs bare WeasyPrint {pages_bare} pages;"
+        f" charts as empty boxes {statistics.median(box_times):.3f} s]"
     )
     ok = ratio <= TARGET_RATIO and value <= TARGET_SECONDS
     if not ok:

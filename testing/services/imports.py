@@ -34,11 +34,11 @@ from testing.importers.readings import (
     ParsedReadings,
     Preview,
     RowError,
-    _validate_rows,
     check_force_unit,
     parse_readings,
     preview_readings,
 )
+from testing.importers.rows import validate_rows
 from testing.importers.xlsx import UnsafeSpreadsheet, check_archive, is_xlsx
 from testing.models import (
     ConsolidationReading,
@@ -546,7 +546,7 @@ def validate_row_objects(
             value = row.get(name)
             values.append(defaults[q] if value in (None, "") and q in defaults else value)
         cells.append((number, values))
-    _validate_rows(cells, columns, layout, None, result)
+    validate_rows(cells, columns, layout, None, result)
     if result.ok and result.rows_read == 0:
         result.add_error(RowError(1, "(row)", "", "no readings were given"))
     return result

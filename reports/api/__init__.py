@@ -7,8 +7,9 @@ from __future__ import annotations
 
 from rest_framework.routers import BaseRouter
 
-from reports.api.views import ReportRevisionViewSet
+from reports.api.views import ReportRevisionViewSet, ReportViewSet
 
 
 def register(router: BaseRouter) -> None:
+    router.register("reports", ReportViewSet, basename="report")
     router.register("report-revisions", ReportRevisionViewSet, basename="report-revision")

@@ -1,4 +1,10 @@
-"""Report revisions over the API. Thin: scoping by selector, every write through a service.
+"""Reports and their revisions over the API. Thin: scoping by selector, every write through a
+service.
+
+A report is created (lab staff who prepare reports: technicians and the lab manager) for test sets
+of one project; its first revision is a draft holding the latest results, which then goes through
+check, approve and issue. Reports and revisions are never edited or deleted over the API: a
+draft's text changes on the lab's pages, an issued revision only by a superseding amendment.
 
 Sign-off actions (check, approve, issue) need the password again in the body; a race answers
 409 and leaves one result; a missing or wrong password answers 403 and signs nothing.
@@ -11,17 +17,22 @@ from __future__ import annotations
 from typing import Any
 
 from django.contrib.auth.models import User
-from django.db.models import QuerySet
+from django.db.models import Prefetch, QuerySet
 from django.http import FileResponse, Http404
+from drf_spectacular.utils import extend_schema, extend_schema_view
 from rest_framework import exceptions, mixins, serializers, status, viewsets
 from rest_framework.decorators import action
 from rest_framework.request import Request
 from rest_framework.response import Response
 
 from reports import selectors, services
-from reports.models import ReportRevision
+from reports.models import Report, ReportRevision
 from testing import access
-from testing.api.permissions import LabAccess
+from testing.api.fields import ScopedRelatedField
+from testing.api.permissions import LabAccess, LabStaffOnly
+from testing.models import DirectShearTest, Project
+
+MAX_TESTS_PER_REPORT = 50
 
 
 class RevisionSerializer(serializers.ModelSerializer[ReportRevision]):
@@ -47,6 +58,57 @@ class RevisionSerializer(serializers.ModelSerializer[ReportRevision]):
             "withdrawn_reason",
         ]
         read_only_fields = fields
+
+
+class RevisionSummary(serializers.ModelSerializer[ReportRevision]):
+    class Meta:
+        model = ReportRevision
+        fields = ["id", "number", "state"]
+        read_only_fields = fields
+
+
+class ReportOut(serializers.ModelSerializer[Report]):
+    project_reference = serializers.CharField(source="project.reference", read_only=True)
+    revisions = RevisionSummary(many=True, read_only=True)
+
+    class Meta:
+        model = Report
+        fields = [
+            "id",
+            "number",
+            "project",
+            "project_reference",
+            "tests",
+            "created_at",
+            "revisions",
+        ]
+        read_only_fields = fields
+
+
+class ReportIn(serializers.Serializer[Any]):
+    project = ScopedRelatedField(model=Project, scope=access.project_filter)
+    tests = ScopedRelatedField(
+        model=DirectShearTest,
+        scope=access.test_filter,
+        many=True,
+        allow_empty=False,
+        help_text="Test sets of the project to report (their latest results are frozen).",
+    )
+    title = serializers.CharField(max_length=200, required=False)
+    remarks = serializers.CharField(max_length=5000, required=False, allow_blank=True)
+    deviations = serializers.CharField(
+        max_length=5000,
+        required=False,
+        allow_blank=True,
+        help_text="Deviations from the test method, as the report should state them.",
+    )
+
+    def validate_tests(self, value: list[DirectShearTest]) -> list[DirectShearTest]:
+        if len(value) > MAX_TESTS_PER_REPORT:
+            raise serializers.ValidationError(
+                f"A report covers at most {MAX_TESTS_PER_REPORT} test sets."
+            )
+        return value
 
 
 class PasswordSerializer(serializers.Serializer[Any]):
@@ -141,3 +203,38 @@ class ReportRevisionViewSet(
             reason=body.validated_data["reason"],
         )
         return Response(RevisionSerializer(new).data, status=status.HTTP_201_CREATED)
+
+
+@extend_schema_view(create=extend_schema(request=ReportIn, responses={201: ReportOut}))
+class ReportViewSet(
+    mixins.ListModelMixin, mixins.RetrieveModelMixin, viewsets.GenericViewSet[Report]
+):
+    """Reports (lab staff): their number, project, test sets and revisions. ``POST`` creates a
+    report and its draft first revision."""
+
+    serializer_class = ReportOut
+    permission_classes = [LabAccess, LabStaffOnly]
+    lookup_value_regex = r"[0-9]{1,18}"
+
+    def get_queryset(self) -> QuerySet[Report]:
+        revisions = Prefetch("revisions", queryset=ReportRevision.objects.order_by("number"))
+        return (
+            selectors.reports_for_user(user=self.request.user)
+            .prefetch_related(revisions)
+            .order_by("-created_at", "-id")
+        )
+
+    def create(self, request: Request, *args: Any, **kwargs: Any) -> Response:
+        user = request.user
+        assert isinstance(user, User)  # LabStaffOnly let only lab staff through
+        body = ReportIn(data=request.data, context=self.get_serializer_context())
+        body.is_valid(raise_exception=True)
+        data = body.validated_data
+        revision = services.report_create(
+            user=user,
+            project=data["project"],
+            tests=data["tests"],
+            **{k: data[k] for k in ("title", "remarks", "deviations") if k in data},
+        )
+        report = self.get_queryset().get(pk=revision.report_id)
+        return Response(ReportOut(report).data, status=status.HTTP_201_CREATED)

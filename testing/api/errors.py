@@ -3,6 +3,8 @@
 ``errors`` is empty unless the request had field-level problems; nested fields are joined with dots
 (``points.2.normal_stress_kpa``). A service's refusal (``ServiceError``) is a 400 whose detail is the
 service's message as written for the user; ``NotAllowed`` (the role may not do this) is a 403.
+Readings refused row by row add ``rows``: every bad row with its row number, column, value and
+reason (see ``RowsRejected``).
 A record that does not exist and one the caller may not see give the same 404 body.
 """
 
@@ -21,6 +23,7 @@ from rest_framework.settings import api_settings
 from rest_framework.views import exception_handler
 
 from testing.services.errors import NotAllowed, ServiceError
+from testing.services.imports import ReadingsRejected
 
 NOT_FOUND = "Not found."
 
@@ -29,6 +32,33 @@ class ServiceRefused(exceptions.APIException):
     status_code = status.HTTP_400_BAD_REQUEST
     default_detail = "The request cannot be carried out."
     default_code = "refused"
+
+
+class RowsRejected(exceptions.APIException):
+    """Readings refused with every bad row: the error body gains ``rows`` (row, column, value,
+    reason) and ``errors`` names each as ``rows.<row>.<column>``. Nothing was saved."""
+
+    status_code = status.HTTP_400_BAD_REQUEST
+    default_detail = "Some rows are not valid; nothing was saved."
+    default_code = "invalid_rows"
+
+    def __init__(self, detail: str, rows: list[dict[str, Any]]) -> None:
+        super().__init__(detail)
+        self.rows = rows
+
+    def field_errors(self) -> dict[str, list[str]]:
+        out: dict[str, list[str]] = {}
+        for row in self.rows:
+            value = f" (value {row['value']!r})" if row.get("value") else ""
+            key = f"rows.{row['row']}.{row['column']}"
+            out.setdefault(key, []).append(f"{row['reason']}{value}")
+        return out
+
+
+class Unavailable(exceptions.APIException):
+    status_code = status.HTTP_503_SERVICE_UNAVAILABLE
+    default_detail = "The database failed part-way; nothing was saved. Send the request again."
+    default_code = "unavailable"
 
 
 class Conflict(exceptions.APIException):
@@ -55,6 +85,8 @@ def _flatten(data: Any, prefix: str = "") -> dict[str, list[str]]:
 
 
 def _translate(exc: Exception) -> Exception:
+    if isinstance(exc, ReadingsRejected):
+        return RowsRejected(str(exc), [e.as_dict() for e in exc.errors])
     if isinstance(exc, NotAllowed):
         return exceptions.PermissionDenied(str(exc))
     if isinstance(exc, ServiceError):
@@ -84,6 +116,8 @@ def api_exception_handler(exc: Exception, context: dict[str, Any]) -> Response |
         else:
             detail = "Some fields are not valid; see errors."
         response.data = {"detail": detail, "errors": errors}
+    elif isinstance(exc, RowsRejected):
+        response.data = {"detail": str(exc.detail), "errors": exc.field_errors(), "rows": exc.rows}
     else:
         data = response.data
         detail = data.get("detail", "") if isinstance(data, dict) else str(data)

@@ -14,11 +14,15 @@ from django.utils import timezone
 from testing.api import scoping
 from testing.api.fields import MAX_ID
 from testing.models import (
+    Apparatus,
     Borehole,
+    CalibrationRecord,
     ComputationRun,
     DirectShearTest,
+    DisplacementGauge,
     EnvelopeResult,
     EnvelopeType,
+    ForceDevice,
     MethodProfile,
     Organisation,
     Project,
@@ -165,3 +169,38 @@ class EnvelopeFilter(df.FilterSet):
             id__gt=OuterRef("id"),
         )
         return queryset.filter(~Exists(newer)) if value else queryset
+
+
+class ApparatusFilter(df.FilterSet):
+    is_active = df.BooleanFilter()
+
+    class Meta:
+        model = Apparatus
+        fields = ["is_active"]
+
+
+class ForceDeviceFilter(df.FilterSet):
+    apparatus = IdFilter(field_name="apparatus_id")
+    is_active = df.BooleanFilter()
+
+    class Meta:
+        model = ForceDevice
+        fields = ["apparatus", "kind", "is_active"]
+
+
+class CalibrationFilter(df.FilterSet):
+    device = IdFilter(field_name="device_id")
+    due_before = df.DateFilter(field_name="due_on", lookup_expr="lt")
+
+    class Meta:
+        model = CalibrationRecord
+        fields = ["device", "due_before"]
+
+
+class GaugeFilter(df.FilterSet):
+    apparatus = IdFilter(field_name="apparatus_id")
+    is_active = df.BooleanFilter()
+
+    class Meta:
+        model = DisplacementGauge
+        fields = ["apparatus", "axis", "is_active"]

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from rest_framework.routers import BaseRouter
 
-from testing.api.views import records, results, shear
+from testing.api.views import equipment, records, results, shear
 
 
 def register(router: BaseRouter) -> None:
@@ -19,3 +19,7 @@ def register(router: BaseRouter) -> None:
     router.register("stage-results", results.StageResultViewSet, basename="stage-result")
     router.register("envelopes", results.EnvelopeViewSet, basename="envelope")
     router.register("throughput", results.ThroughputViewSet, basename="throughput")
+    router.register("apparatus", equipment.ApparatusViewSet, basename="apparatus")
+    router.register("force-devices", equipment.ForceDeviceViewSet, basename="force-device")
+    router.register("calibrations", equipment.CalibrationViewSet, basename="calibration")
+    router.register("gauges", equipment.GaugeViewSet, basename="gauge")

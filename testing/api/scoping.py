@@ -6,7 +6,9 @@ release. A recompute after release adds rows a client does not see until a repor
 
 from __future__ import annotations
 
-from django.db.models import F, QuerySet
+from typing import TypeVar
+
+from django.db.models import F, Model, QuerySet
 
 from testing import access
 from testing.access import AnyUser
@@ -20,6 +22,8 @@ from testing.models import (
     Specimen,
     StageResult,
 )
+
+EquipmentModel = TypeVar("EquipmentModel", bound=Model)
 
 
 def organisations(user: AnyUser) -> QuerySet[Organisation]:
@@ -60,3 +64,10 @@ def envelopes(user: AnyUser) -> QuerySet[EnvelopeResult]:
     if not access.is_lab_staff(user):
         queryset = queryset.filter(created_at__lte=F("test__released_at"))
     return queryset
+
+
+def equipment(user: AnyUser, model: type[EquipmentModel]) -> QuerySet[EquipmentModel]:
+    """The equipment register is lab staff's; clients see none of it."""
+    if not access.is_lab_staff(user):
+        return model._default_manager.none()
+    return model._default_manager.all()

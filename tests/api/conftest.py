@@ -28,12 +28,16 @@ from rest_framework.test import APIClient
 
 from labsite.celery import app as celery_app
 from reports import services as report_services
-from reports.models import ReportRevision, RevisionState
+from reports.models import Report, ReportRevision, RevisionState
 from testing.models import (
+    Apparatus,
+    CalibrationRecord,
     ComputationRun,
     ConsolidationReading,
     DirectShearTest,
+    DisplacementGauge,
     EnvelopeResult,
+    ForceDevice,
     Organisation,
     Project,
     RunKind,
@@ -44,6 +48,7 @@ from testing.models import (
     Specimen,
     StageResult,
 )
+from testing.services import equipment
 from testing.services.records import specimen_create
 from testing.services.release import test_mark_released
 from testing.services.shear_setup import shear_test_create, stage_create
@@ -95,7 +100,14 @@ class OrgWorld:
     envelope: EnvelopeResult
     open_test: DirectShearTest  # not released: clients must not see it
     spare_specimen: Specimen  # not yet in a stage
+    open_stage: ShearStage  # stage 2 of ``open_test`` (load cell, N): its readings may change
+    # The equipment register is the lab's, not a client's: each side's records are named after it.
+    apparatus: Apparatus
+    force_device: ForceDevice
+    calibration: CalibrationRecord
+    gauge: DisplacementGauge
     # Reports of ``test`` (``world`` only; None in ``plain_world``):
+    report: Report | None = None  # the report holding the issued revision
     revision: ReportRevision | None = None  # issued, with its signed PDF
     draft_revision: ReportRevision | None = None  # waiting to be checked
     checked_revision: ReportRevision | None = None  # waiting to be approved
@@ -221,6 +233,58 @@ def make_envelope_rows(test: DirectShearTest) -> EnvelopeResult:
     )
 
 
+def _open_stage(cast: Cast, test: DirectShearTest, specimen: Specimen) -> ShearStage:
+    return stage_create(
+        user=cast.technician,
+        test=test,
+        specimen=specimen,
+        stage_number=2,
+        loading="frame",
+        applied_normal_stress_kpa=100.0,
+        force_unit="N",
+    )
+
+
+def _equipment(cast: Cast, prefix: str) -> dict[str, Any]:
+    apparatus = equipment.apparatus_create(
+        user=cast.manager, reference=f"SB-{prefix}", box_length_mm=60.0, box_width_mm=60.0
+    )
+    device = equipment.force_device_create(
+        user=cast.manager,
+        reference=f"LC-{prefix}",
+        kind="load_cell",
+        capacity_n=5000.0,
+        reading_unit="N",
+        apparatus=apparatus,
+    )
+    calibration = equipment.calibration_record_create(
+        user=cast.manager,
+        device=device,
+        certificate_number=f"CAL-{prefix}-1",
+        issuing_lab="Calibration lab",
+        calibrated_on=date(2026, 1, 10),
+        due_on=date(2027, 1, 10),
+        model="linear",
+        coefficients=[1.0],
+        range_min=0.0,
+        range_max=5000.0,
+    )
+    gauge = equipment.gauge_create(
+        user=cast.manager,
+        reference=f"DG-{prefix}",
+        kind="dial",
+        axis="horizontal",
+        factor_mm_per_unit=0.01,
+        apparatus=apparatus,
+    )
+    return {
+        "apparatus": apparatus,
+        "force_device": device,
+        "calibration": calibration,
+        "gauge": gauge,
+    }
+
+
 def org_world(cast: Cast, records: Records, prefix: str) -> OrgWorld:
     specimen = _specimen(cast, records.sample, "S1")
     test = _test_set(cast, records.project, f"DS-{prefix}")
@@ -229,6 +293,7 @@ def org_world(cast: Cast, records: Records, prefix: str) -> OrgWorld:
     envelope = make_envelope_rows(test)
     test_mark_released(test=test, at=timezone.now() + timedelta(seconds=1))
     open_test = _test_set(cast, records.project, f"DS-{prefix}-OPEN")
+    open_stage = _open_stage(cast, open_test, _specimen(cast, records.sample, "S3"))
     return OrgWorld(
         organisation=records.project.organisation,
         project=records.project,
@@ -242,6 +307,8 @@ def org_world(cast: Cast, records: Records, prefix: str) -> OrgWorld:
         envelope=envelope,
         open_test=open_test,
         spare_specimen=_specimen(cast, records.sample, "S2"),
+        open_stage=open_stage,
+        **_equipment(cast, prefix),
     )
 
 
@@ -292,6 +359,7 @@ def with_reports(cast: Cast, side: OrgWorld, capture: Callable[..., Any]) -> Org
     assert issued.state == RevisionState.ISSUED and issued.pdf, issued.render_error
     return replace(
         side,
+        report=issued.report,
         revision=issued,
         draft_revision=prepared(),
         checked_revision=checked(),

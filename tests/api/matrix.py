@@ -104,6 +104,33 @@ _results = record()
 _envelopes = record()
 
 _STAFF_ONLY_OTHER = row(401, 403, 403, 405, 405, 405, 405, 401)
+
+
+def staff_record(list_post: Row) -> dict[str, dict[str, Row]]:
+    """A lab-staff-only resource (the equipment register, reports): clients are refused before
+    any record is looked up; created through a service; never updated or deleted here."""
+    return {
+        "list": {
+            "GET": STAFF_LIST,
+            "POST": list_post,
+            "PUT": _STAFF_ONLY_OTHER,
+            "PATCH": _STAFF_ONLY_OTHER,
+            "DELETE": _STAFF_ONLY_OTHER,
+        },
+        "detail": {m: (STAFF_DETAIL if m == "GET" else _STAFF_ONLY_OTHER) for m in METHODS},
+    }
+
+
+# The equipment register: read by lab staff, added to by the lab manager only.
+_apparatus = staff_record(CREATE_BY_MANAGER)
+_force_devices = staff_record(CREATE_BY_MANAGER)
+_calibrations = staff_record(CREATE_BY_MANAGER)
+_gauges = staff_record(CREATE_BY_MANAGER)
+# Reports: read by lab staff; created (with a draft first revision) by those who prepare them.
+_reports = staff_record(CREATE_BY_TECHNICIAN)
+# Readings upload to an unreported stage: technicians and the lab manager (201); checkers and
+# approvers do not enter readings (the service's 403).
+_READINGS_UPLOAD = row(401, 403, 403, (201, 201), 403, 403, (201, 201), 401)
 # Recompute requests: any lab staff (202 Accepted); clients refused.
 _RECOMPUTE = row(401, 403, 403, (202, 202), (202, 202), (202, 202), (202, 202), 401)
 # Stage exclusion on a reported set: the role check first (approvers may not), then the rule that a
@@ -187,6 +214,7 @@ MATRIX: dict[str, dict[str, Row]] = {
     "api:stage-consolidation-readings": read_action(),
     "api:stage-exclude": post_action(_EXCLUDE_ON_REPORTED),
     "api:stage-include": post_action(_EXCLUDE_ON_REPORTED),
+    "api:stage-readings-upload": post_action(_READINGS_UPLOAD),
     "api:computation-run-list": {
         "GET": STAFF_LIST,
         "POST": _STAFF_ONLY_OTHER,
@@ -209,6 +237,16 @@ MATRIX: dict[str, dict[str, Row]] = {
     "api:envelope-recompute": post_action(
         _RECOMPUTE, get=_STAFF_ONLY_OTHER, other=_STAFF_ONLY_OTHER
     ),
+    "api:apparatus-list": _apparatus["list"],
+    "api:apparatus-detail": _apparatus["detail"],
+    "api:force-device-list": _force_devices["list"],
+    "api:force-device-detail": _force_devices["detail"],
+    "api:calibration-list": _calibrations["list"],
+    "api:calibration-detail": _calibrations["detail"],
+    "api:gauge-list": _gauges["list"],
+    "api:gauge-detail": _gauges["detail"],
+    "api:report-list": _reports["list"],
+    "api:report-detail": _reports["detail"],
     "api:report-revision-list": _revisions["list"],
     "api:report-revision-detail": _revisions["detail"],
     "api:report-revision-pdf": read_action(),

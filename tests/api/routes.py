@@ -27,12 +27,19 @@ OBJECT_OF = {
     "stage-result": "result",
     "envelope": "envelope",
     "report-revision": "revision",  # the issued revision
+    "report": "report",
+    "apparatus": "apparatus",
+    "force-device": "force_device",
+    "calibration": "calibration",
+    "gauge": "gauge",
 }
 # Sign-off actions act on a revision waiting for that step (the issued one would only answer 409).
 OBJECT_OF_ROUTE = {
     "api:report-revision-check": "draft_revision",
     "api:report-revision-approve": "checked_revision",
     "api:report-revision-issue": "approved_revision",
+    # Readings can change only while the set is unreported.
+    "api:stage-readings-upload": "open_stage",
 }
 MISSING_ID = 987_654_321
 
@@ -133,7 +140,51 @@ def create_payload(route: str, world: World, side: OrgWorld) -> dict[str, Any]:
             "applied_normal_stress_kpa": 100.0,
             "force_unit": "N",
         }
+    code = side.organisation.code
+    if base == "apparatus":
+        return {"reference": f"SB-new-{code}", "box_length_mm": 100.0, "box_width_mm": 100.0}
+    if base == "force-device":
+        return {"reference": f"PR-new-{code}", "kind": "ring", "capacity_n": 4500.0}
+    if base == "calibration":
+        return {
+            "device": side.force_device.pk,
+            "certificate_number": f"CAL-new-{code}",
+            "issuing_lab": "Calibration lab",
+            "calibrated_on": "2026-06-01",
+            "due_on": "2027-06-01",
+            "model": "linear",
+            "coefficients": [1.0],
+            "range_min": 0.0,
+            "range_max": 5000.0,
+        }
+    if base == "gauge":
+        return {
+            "reference": f"DG-new-{code}",
+            "kind": "lvdt",
+            "axis": "vertical",
+            "factor_mm_per_unit": 1.0,
+        }
+    if base == "report":
+        return {"project": side.project.pk, "tests": [side.test.pk]}
     return {}  # a resource that offers no create
+
+
+# Readings in the canonical layout for a load-cell stage, as JSON rows: two consolidation
+# readings, then four shear readings.
+CANONICAL_ROWS: list[dict[str, Any]] = [
+    {"phase": "consolidation", "time_s": 0, "vertical_displacement_mm": 0.0},
+    {"phase": "consolidation", "time_s": 600, "vertical_displacement_mm": -0.12},
+    *(
+        {
+            "phase": "shear",
+            "time_s": 30 * i,
+            "horizontal_displacement_mm": 0.25 * i,
+            "vertical_displacement_mm": 0.01 * i,
+            "shear_force_n": 40.0 * i,
+        }
+        for i in range(4)
+    ),
+]
 
 
 ACTION_BODIES: dict[str, dict[str, Any]] = {
@@ -147,6 +198,7 @@ ACTION_BODIES: dict[str, dict[str, Any]] = {
     "api:report-revision-approve": {"password": PASSWORD},
     "api:report-revision-issue": {"password": PASSWORD},
     "api:report-revision-supersede": {"reason": "checking the permission matrix"},
+    "api:stage-readings-upload": {"rows": CANONICAL_ROWS, "reason": "checking the matrix"},
 }
 
 

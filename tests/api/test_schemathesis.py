@@ -7,6 +7,7 @@ Bounded: 6 examples per operation and persona, no shrinking.
 from __future__ import annotations
 
 from collections.abc import Iterator
+from pathlib import Path
 from typing import Any
 
 import pytest
@@ -48,6 +49,12 @@ def _keep_the_test_connection() -> Iterator[None]:
     finally:
         signals.request_started.connect(close_old_connections)
         signals.request_finished.connect(close_old_connections)
+
+
+@pytest.fixture(autouse=True)
+def _media_in_a_temporary_folder(settings: Any, tmp_path: Path) -> None:
+    """A generated upload that reaches a stage stores its original here, not in the site's media."""
+    settings.MEDIA_ROOT = tmp_path / "media"
 
 
 @pytest.fixture

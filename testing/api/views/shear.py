@@ -9,16 +9,26 @@ from django.db.models import Model, QuerySet
 from drf_spectacular.utils import extend_schema, extend_schema_view
 from rest_framework import status
 from rest_framework.decorators import action
+from rest_framework.parsers import JSONParser, MultiPartParser
 from rest_framework.request import Request
 from rest_framework.response import Response
 
 from testing import selectors
 from testing.api import filters, scoping
+from testing.api.errors import RowsRejected, Unavailable
 from testing.api.serializers import results as rs
 from testing.api.serializers import shear as s
+from testing.api.serializers import uploads as up
 from testing.api.views.base import CreateViaServiceMixin, RecordViewSet
-from testing.models import ConsolidationReading, DirectShearTest, ShearReading, ShearStage
-from testing.services import computation, shear_setup
+from testing.models import (
+    ConsolidationReading,
+    DirectShearTest,
+    ImportState,
+    ReadingImport,
+    ShearReading,
+    ShearStage,
+)
+from testing.services import computation, imports, shear_setup
 
 
 @extend_schema_view(create=extend_schema(request=s.TestSetIn, responses={201: s.TestSetOut}))
@@ -90,6 +100,50 @@ class StageViewSet(CreateViaServiceMixin, RecordViewSet):
         page = self.paginate_queryset(queryset)
         return self.get_paginated_response(s.ConsolidationReadingOut(page, many=True).data)
 
+    @extend_schema(
+        request={"multipart/form-data": up.ReadingsFileIn, "application/json": up.ReadingsRowsIn},
+        responses={
+            201: up.ReadingsUploadOut,
+            200: up.ReadingsUploadOut,
+            400: up.READINGS_REJECTED_SCHEMA,
+        },
+    )
+    @action(
+        detail=True,
+        methods=["post"],
+        url_path="readings-upload",
+        parser_classes=[JSONParser, MultiPartParser],
+    )
+    def readings_upload(self, request: Request, pk: str | None = None) -> Response:
+        """Send the stage's readings: a logger file (multipart ``file``) or JSON ``rows``.
+
+        The importer's checks and all-or-nothing rule: with any bad row the answer is 400 listing
+        every bad row (row, column, value, reason) and nothing is saved; otherwise 201 with the
+        counts saved. The phases sent replace the stage's readings of those phases, and the stage
+        is reduced again. The same file sent again answers 200 (duplicate) and adds nothing.
+        Technicians and the lab manager only; refused once the test set has been reported.
+        """
+        stage = self.get_object()
+        multipart = request.content_type.startswith("multipart/")
+        body = (up.ReadingsFileIn if multipart else up.ReadingsRowsIn)(data=request.data)
+        body.is_valid(raise_exception=True)
+        data = body.validated_data
+        common: dict[str, Any] = {
+            "user": self.acting_user,
+            "stage": stage,
+            "layout": data.get("layout"),
+            "reason": data.get("reason", ""),
+        }
+        if multipart:
+            return _import_answer(imports.stage_readings_import(upload=data["file"], **common))
+        stored = imports.stage_readings_rows_import(rows=data["rows"], **common)
+        return _upload_answer(
+            ImportState.SUCCEEDED,
+            consolidation_rows=stored.consolidation_rows,
+            shear_rows=stored.shear_rows,
+            replaced_rows=stored.replaced_rows,
+        )
+
     @extend_schema(request=rs.StageExclusionIn, responses={204: None})
     @action(detail=True, methods=["post"])
     def exclude(self, request: Request, pk: str | None = None) -> Response:
@@ -118,3 +172,28 @@ class StageViewSet(CreateViaServiceMixin, RecordViewSet):
             user=self.acting_user,
         )
         return Response(status=status.HTTP_204_NO_CONTENT)
+
+
+def _import_answer(record: ReadingImport) -> Response:
+    """A saved file or a duplicate (see ``_upload_answer``); a rejected file lists its bad rows
+    (400) and a database failure part-way is a 503 (nothing saved, safe to send again)."""
+    if record.state == ImportState.REJECTED:
+        raise RowsRejected(record.reason, list(record.errors))
+    if record.state == ImportState.FAILED:
+        raise Unavailable(record.reason)
+    return _upload_answer(
+        record.state,
+        reading_import=record.pk,
+        duplicate_of=record.duplicate_of_id,
+        consolidation_rows=record.consolidation_rows,
+        shear_rows=record.shear_rows,
+        replaced_rows=record.replaced_rows,
+        message=record.reason,
+    )
+
+
+def _upload_answer(state: str, **counts: int | str | None) -> Response:
+    """201 when readings were saved, 200 when nothing was added (a duplicate file)."""
+    body = {"reading_import": None, "duplicate_of": None, "message": "", **counts, "state": state}
+    code = status.HTTP_201_CREATED if state == ImportState.SUCCEEDED else status.HTTP_200_OK
+    return Response(up.ReadingsUploadOut(body).data, status=code)

@@ -299,6 +299,9 @@ SPECTACULAR_SETTINGS = {
     "ENUM_NAME_OVERRIDES": {
         "SampleStatusEnum": "testing.models.samples.SampleStatus",
         "ShapeEnum": "testing.models.direct_shear.BoxShape",
+        "RunKindEnum": "testing.models.results.RunKind",
+        "ForceDeviceKindEnum": "testing.models.equipment.ForceDeviceKind",
+        "GaugeKindEnum": "testing.models.equipment.GaugeKind",
     },
 }
 

@@ -9,12 +9,15 @@ from django.contrib.auth.models import User
 from django.db import connection
 from django.test.utils import CaptureQueriesContext
 from django.urls import reverse
+from django.utils import timezone
 from rest_framework.test import APIClient
 
+from reports.models import ReportRevision, RevisionState
+from reports.services import report_create, revision_approve, revision_check
 from testing.models import Organisation, SampleStatus, ShearReading
 from testing.services.lifecycle import sample_transition
 from tests.api.conftest import OrgWorld, org_world
-from tests.conftest import Cast, make_records
+from tests.conftest import PASSWORD, Cast, make_records
 
 # Queries common to every list: (1) the caller's lab profile (permission check) — tokens and
 # sessions are bypassed here with force_authenticate, so authentication adds none.
@@ -43,6 +46,17 @@ EXPECTED = {
     "api:envelope-list": PROFILE + PAGE,
     # throughput: one aggregate query, no pagination
     "api:throughput-list": PROFILE + 1,
+    # report revisions: COUNT + SELECT joined to report, project, organisation and the revision
+    # each replaces (the serializer shows the report number, project reference and replaced id)
+    "api:report-revision-list": PROFILE + PAGE,
+    # reports: COUNT + SELECT joined to project and organisation, then one prefetch each for
+    # the test sets (many-to-many) and the revisions
+    "api:report-list": PROFILE + PAGE + 2,
+    # the equipment register: COUNT + SELECT; calibrations joined to their device
+    "api:apparatus-list": PROFILE + PAGE,
+    "api:force-device-list": PROFILE + PAGE,
+    "api:calibration-list": PROFILE + PAGE,
+    "api:gauge-list": PROFILE + PAGE,
 }
 # Sub-lists of one record: (2) the record itself through the scoped queryset, then COUNT + page.
 NESTED = {
@@ -51,15 +65,37 @@ NESTED = {
     # events: the sample, then COUNT + SELECT joined to the user who moved it
     "api:sample-events": PROFILE + 1 + PAGE,
 }
-STAFF_ONLY = {"api:organisation-list", "api:computation-run-list"}
+STAFF_ONLY = {
+    "api:organisation-list",
+    "api:computation-run-list",
+    "api:report-list",
+    "api:apparatus-list",
+    "api:force-device-list",
+    "api:calibration-list",
+    "api:gauge-list",
+}
 
 
 def _grow(cast: Cast, worlds: list[OrgWorld], n: int) -> None:
-    """Add record trees for client A (and organisations) until there are ``n`` of each."""
+    """Add record trees for client A (with their equipment, and organisations) until there are
+    ``n`` of each, each with a report of its test set."""
     while len(worlds) < n:
         index = len(worlds)
         Organisation.objects.create(name=f"Extra client {index}", code=f"extra-{index}")
-        worlds.append(org_world(cast, make_records(cast, cast.org_a, f"Q{index}"), f"Q{index}"))
+        world = org_world(cast, make_records(cast, cast.org_a, f"Q{index}"), f"Q{index}")
+        revision = report_create(user=cast.technician, project=world.project, tests=[world.test])
+        revision = revision_check(user=cast.checker, revision=revision, password=PASSWORD)
+        revision = revision_approve(user=cast.approver, revision=revision, password=PASSWORD)
+        # Issued directly (a fixture: issuing renders and signs a PDF, seconds each; no file is
+        # read here), so the client's list, which shows only issued revisions, grows too.
+        ReportRevision.objects.filter(pk=revision.pk).update(
+            state=RevisionState.ISSUED,
+            issued_by=cast.approver,
+            issued_at=timezone.now(),
+            pdf=f"reports/fixture-{revision.pk}.pdf",
+            pdf_sha256="0" * 64,
+        )
+        worlds.append(world)
 
 
 def _grow_nested(world: OrgWorld, user: User, n: int) -> None:

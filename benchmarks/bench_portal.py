@@ -148,11 +148,12 @@ def run(*, smoke: bool) -> int:
     request.user = users["client-a"]
     request.csp_nonce = "bench"  # type: ignore[attr-defined]
     # The page's context, already in memory (the stored-PDF checks are cached by the warm page).
-    revisions = portal_selectors.issued_revisions_for_portal(user=users["client-a"])
-    assert len(revisions) >= large
+    rows = portal_selectors.issued_revisions_for_portal(user=users["client-a"])
+    assert len(rows) >= large
     context = {
         "projects": portal_selectors.projects_for_portal(user=users["client-a"]),
-        "revisions": revisions,
+        "rows": rows,
+        "revisions": [row.revision for row in rows],
         "caution": CAUTION,
     }
 

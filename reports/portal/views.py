@@ -49,12 +49,14 @@ def _figure(chart: Chart) -> dict[str, Any]:
 
 @login_required
 def portal_home(request: HttpRequest) -> HttpResponse:
+    rows = portal_selectors.issued_revisions_for_portal(user=request.user)
     return render(
         request,
         "portal/home.html",
         {
             "projects": portal_selectors.projects_for_portal(user=request.user),
-            "revisions": portal_selectors.issued_revisions_for_portal(user=request.user),
+            "rows": rows,
+            "revisions": [row.revision for row in rows],
             "caution": CAUTION,
         },
     )

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import re
 from typing import Any
 
 import pytest
@@ -96,3 +97,43 @@ def test_every_persona_gets_what_the_matrix_says(world: World) -> None:
                             failures.append(f"{persona} {method} {url}: error body {data!r:.200}")
     assert not failures, f"{len(failures)} of {checked} cells differ:\n" + "\n".join(failures)
     assert checked > 8 * 5 * len(MATRIX)  # every persona × method × route, twice for pairs
+
+
+STAFF = ("technician", "checker", "approver", "manager")
+
+
+def _offered(row: dict[str, Any]) -> bool:
+    """Some lab-staff persona gets past "method not allowed" (405) on some target."""
+    cells = [row[p] for p in STAFF]
+    return any(
+        status != 405 for cell in cells for status in (cell if isinstance(cell, tuple) else (cell,))
+    )
+
+
+def _id_or_nothing(match: re.Match[str]) -> str:
+    """The router's ``(?P<pk>...)`` is the schema's ``{id}``; its anchors are dropped."""
+    return "" if match.group(0) in {"^", "$"} else "{id}"
+
+
+@pytest.mark.django_db
+def test_the_openapi_schema_documents_exactly_the_methods_the_matrix_offers() -> None:
+    """Every method the matrix expects to work is in the schema, and every 405 is intentional:
+    the schema does not document it either (records change through actions, not PUT/PATCH/DELETE)."""
+    response: Any = APIClient().get(reverse("api:schema"), {"format": "json"})
+    schema = response.json()
+    documented = {
+        path: {method.upper() for method in operations if method.upper() in METHODS}
+        for path, operations in schema["paths"].items()
+    }
+    differences = []
+    checked = 0
+    for route, pattern in api_routes():
+        if not pattern.startswith("api/v1/") or route == "api:api-root":
+            continue  # the schema, its docs page and the browsable root are not API operations
+        path = "/" + re.sub(r"\(\?P<pk>[^)]*\)|<pk>|\^|\$", _id_or_nothing, pattern)
+        offered = {method for method, row in MATRIX[route].items() if _offered(row)}
+        if documented.get(path, set()) != offered:
+            differences.append(f"{route} {path}: schema {documented.get(path)}, matrix {offered}")
+        checked += 1
+    assert not differences, "\n".join(differences)
+    assert checked == len(MATRIX) - 3  # all but the schema, its docs page and the root

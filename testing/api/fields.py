@@ -52,6 +52,12 @@ class ScopedRelatedField(serializers.PrimaryKeyRelatedField):
         return super().to_internal_value(data)
 
 
+def lab_wide(user: AnyUser) -> Q:
+    """The scope of the lab's own records (equipment, saved import layouts): any lab staff member
+    may refer to any of them; ``ScopedRelatedField`` already refuses every id to clients."""
+    return Q()
+
+
 def _check_year(value: date) -> None:
     if not EARLIEST_YEAR <= value.year <= LATEST_YEAR:
         raise serializers.ValidationError(f"Give a date between {EARLIEST_YEAR} and {LATEST_YEAR}.")

@@ -223,3 +223,32 @@ def test_neither_or_a_malformed_body_is_a_field_error(plain_world: World) -> Non
     }
     assert "file" in client.post(url, {"reason": "x"}, format="multipart").json()["errors"]
     assert client.post(url, {"rows": []}, format="json").status_code == 400
+
+
+@pytest.mark.django_db
+def test_a_saved_layout_names_the_columns_of_json_rows(plain_world: World) -> None:
+    from testing.services.imports import import_layout_save
+
+    stage = plain_world.a.open_stage
+    ShearStage.objects.filter(pk=stage.pk).update(force_unit="div")  # a proving-ring stage
+    layout = import_layout_save(
+        user=plain_world.cast.technician,
+        name="Ring logger",
+        columns={
+            "time": {"column": "t", "unit": "min"},
+            "horizontal": {"column": "dx", "unit": "mm"},
+            "vertical": {"column": "dy", "unit": "mm"},
+            "force": {"column": "ring", "unit": "div"},
+        },
+    )
+    rows = [{"t": 0.5 * i, "dx": 0.2 * i, "dy": 0.0, "ring": 12 * i} for i in range(5)]
+    client = token_client(plain_world.cast.technician)
+    url = _url(stage)
+    response = client.post(url, {"rows": rows, "layout": layout.pk}, format="json")
+    assert response.status_code == 201, response.content
+    forces = ShearReading.objects.filter(stage=stage).order_by("seq").values_list("force_reading")
+    assert [f for (f,) in forces] == pytest.approx([0.0, 12.0, 24.0, 36.0, 48.0])  # divisions
+    # An id beyond any database integer is a field error, not a server error.
+    huge = client.post(url, {"rows": rows, "layout": 10**30}, format="json")
+    assert huge.status_code == 400
+    assert "layout" in huge.json()["errors"]

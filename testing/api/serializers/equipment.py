@@ -3,11 +3,9 @@ displacement gauges (lab staff only; the lab manager adds records)."""
 
 from __future__ import annotations
 
-from django.db.models import Q
 from rest_framework import serializers
 
-from testing.access import AnyUser
-from testing.api.fields import ScopedRelatedField
+from testing.api.fields import ScopedRelatedField, lab_wide
 from testing.api.serializers.base import InputSerializer, OutputSerializer
 from testing.models import Apparatus, CalibrationRecord, DisplacementGauge, ForceDevice
 
@@ -66,11 +64,6 @@ GAUGE_FIELDS = [
 ]
 
 
-def _any_record(user: AnyUser) -> Q:
-    # The register is the lab's own: lab staff may refer to any record (clients never get here).
-    return Q()
-
-
 class ApparatusOut(OutputSerializer):
     class Meta:
         model = Apparatus
@@ -92,9 +85,7 @@ class ForceDeviceOut(OutputSerializer):
 class _OnApparatusIn(InputSerializer):
     """A device that may be fitted to one of the lab's shear machines."""
 
-    apparatus = ScopedRelatedField(
-        model=Apparatus, scope=_any_record, required=False, allow_null=True
-    )
+    apparatus = ScopedRelatedField(model=Apparatus, scope=lab_wide, required=False, allow_null=True)
 
 
 class ForceDeviceIn(_OnApparatusIn):
@@ -115,7 +106,7 @@ class CalibrationIn(InputSerializer):
     """A calibration certificate. Coefficients: linear [K] in N per reading unit; polynomial
     [a0, a1, a2(, a3)] ascending, in N, N/unit, N/unit², N/unit³."""
 
-    device = ScopedRelatedField(model=ForceDevice, scope=_any_record)
+    device = ScopedRelatedField(model=ForceDevice, scope=lab_wide)
     coefficients = serializers.ListField(
         child=serializers.FloatField(min_value=-1e12, max_value=1e12),
         min_length=1,

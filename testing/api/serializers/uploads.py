@@ -11,6 +11,7 @@ from typing import Any
 from drf_spectacular.utils import extend_schema_field
 from rest_framework import serializers
 
+from testing.api.fields import ScopedRelatedField, lab_wide
 from testing.importers.layout import CANONICAL_LAYOUT
 from testing.models import ImportLayout
 
@@ -47,8 +48,9 @@ class ReadingRowField(serializers.JSONField):
 
 
 class _UploadOptions(serializers.Serializer[Any]):
-    layout = serializers.PrimaryKeyRelatedField(
-        queryset=ImportLayout.objects.all(),
+    layout = ScopedRelatedField(
+        model=ImportLayout,
+        scope=lab_wide,
         required=False,
         allow_null=True,
         help_text="A saved column layout's id; default: the canonical CSV layout.",

@@ -125,7 +125,9 @@ class StageViewSet(CreateViaServiceMixin, RecordViewSet):
         """
         stage = self.get_object()
         multipart = request.content_type.startswith("multipart/")
-        body = (up.ReadingsFileIn if multipart else up.ReadingsRowsIn)(data=request.data)
+        body = (up.ReadingsFileIn if multipart else up.ReadingsRowsIn)(
+            data=request.data, context=self.get_serializer_context()
+        )
         body.is_valid(raise_exception=True)
         data = body.validated_data
         common: dict[str, Any] = {

@@ -46,4 +46,6 @@ def test_test_set_recompute_answers_the_documented_object(plain_world: World) ->
     stages = set(test.stages.values_list("pk", flat=True))
     assert {run["stage"] for run in body["runs"]} == stages
     assert all(run["kind"] == RunKind.STAGE_REDUCTION for run in body["runs"])
-    assert ComputationRun.objects.filter(pk__in=[r["id"] for r in body["runs"]]).count() == len(stages)
+    assert ComputationRun.objects.filter(pk__in=[r["id"] for r in body["runs"]]).count() == len(
+        stages
+    )

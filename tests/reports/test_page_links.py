@@ -71,5 +71,8 @@ def test_navigation_offers_reports_to_staff_and_the_portal_to_clients(cast: Cast
     assert f'href="{reverse("reports:list")}"' in staff_nav
     assert reverse("portal:home") not in staff_nav
     client_nav = _nav(_get(cast.client_a, reverse("portal:home")).content.decode())
-    assert f'href="{reverse("portal:home")}" aria-current="page">Your projects and reports<' in client_nav
+    assert (
+        f'href="{reverse("portal:home")}" aria-current="page">Your projects and reports<'
+        in client_nav
+    )
     assert reverse("reports:list") not in client_nav

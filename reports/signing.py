@@ -225,10 +225,14 @@ class SignatureCheck:
         return self.signed and self.intact and self.trusted and self.covers_whole_file
 
 
-def verify_pdf(pdf: bytes, *, trusted_pem: str | None = None) -> SignatureCheck:
+def verify_pdf(
+    pdf: bytes, *, trusted_pem: str | None = None, at: dt.datetime | None = None
+) -> SignatureCheck:
     """Check the lab signature of a PDF offline: against ``trusted_pem`` (the certificate recorded
-    for the revision) when given, else against the lab's current certificate."""
-    return _off_the_event_loop(_verify_pdf, pdf, trusted_pem)
+    for the revision) when given, else against the lab's current certificate; the certificate must
+    have been valid at ``at`` (the revision's issue time from the lab's own record), default now.
+    So a report keeps verifying after the certificate that signed it has expired."""
+    return _off_the_event_loop(_verify_pdf, pdf, trusted_pem, at)
 
 
 def _trust_root(trusted_pem: str | None) -> asn1_x509.Certificate:
@@ -237,7 +241,9 @@ def _trust_root(trusted_pem: str | None) -> asn1_x509.Certificate:
     return _asn1_certificate(trusted_pem.encode("ascii"))
 
 
-def _verify_pdf(pdf: bytes, trusted_pem: str | None = None) -> SignatureCheck:
+def _verify_pdf(
+    pdf: bytes, trusted_pem: str | None = None, at: dt.datetime | None = None
+) -> SignatureCheck:
     try:
         reader = PdfFileReader(io.BytesIO(pdf), strict=False)
         signatures = reader.embedded_signatures
@@ -247,21 +253,42 @@ def _verify_pdf(pdf: bytes, trusted_pem: str | None = None) -> SignatureCheck:
         return SignatureCheck(signed=False, problem="The PDF carries no signature.")
     sig = signatures[-1]
     try:
-        context = ValidationContext(trust_roots=[_trust_root(trusted_pem)], allow_fetching=False)
+        context = ValidationContext(
+            trust_roots=[_trust_root(trusted_pem)], allow_fetching=False, moment=at
+        )
         status = validate_pdf_signature(sig, context)
     except Exception as exc:
         return SignatureCheck(
             signed=True, problem=f"Signature could not be validated: {type(exc).__name__}: {exc}"
         )
     whole = status.coverage == SignatureCoverageLevel.ENTIRE_FILE
+    trusted = bool(status.trusted)
+    problem = "" if (status.intact and status.valid and trusted and whole) else status.summary()
+    outside = _outside_validity(status.signing_cert, at)
+    if trusted and outside:
+        trusted, problem = False, outside
     return SignatureCheck(
         signed=True,
         intact=bool(status.intact and status.valid),
-        trusted=bool(status.trusted),
+        trusted=trusted,
         covers_whole_file=whole,
         signer=status.signing_cert.subject.human_friendly if status.signing_cert else "",
         signed_at=status.signer_reported_dt,
-        problem=""
-        if (status.intact and status.valid and status.trusted and whole)
-        else status.summary(),
+        problem=problem,
+    )
+
+
+def _outside_validity(cert: asn1_x509.Certificate | None, at: dt.datetime | None) -> str:
+    """Why ``cert`` was not valid at ``at`` ("" if it was, or if no moment is asked). Path
+    validation does not apply validity dates to a trust anchor, and the recorded certificate is
+    its own anchor, so the dates are checked here."""
+    if cert is None or at is None:
+        return ""
+    validity = cert["tbs_certificate"]["validity"]
+    start, end = validity["not_before"].native, validity["not_after"].native
+    if start <= at <= end:
+        return ""
+    return (
+        f"The signing certificate was not valid at {at:%Y-%m-%d %H:%M} UTC "
+        f"(valid {start:%Y-%m-%d %H:%M} to {end:%Y-%m-%d %H:%M} UTC)."
     )

@@ -56,9 +56,12 @@ def _describe(revision: ReportRevision, replaced_by: ReportRevision | None) -> s
 
 
 def revision_signature_check(revision: ReportRevision, data: bytes) -> signing.SignatureCheck:
-    """The PDF's signature checked against the certificate that signed this revision."""
+    """The PDF's signature checked against the certificate that signed this revision, as of the
+    time the lab issued it."""
     certificate = revision.signing_certificate
-    return signing.verify_pdf(data, trusted_pem=certificate.pem if certificate else None)
+    return signing.verify_pdf(
+        data, trusted_pem=certificate.pem if certificate else None, at=revision.issued_at
+    )
 
 
 def verify_pdf_bytes(data: bytes) -> Verification:

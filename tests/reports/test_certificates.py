@@ -145,3 +145,38 @@ def test_the_recorded_certificate_of_an_issued_revision_cannot_change(
         ReportRevision.objects.filter(pk=issued.pk).update(signing_certificate=other)
     with pytest.raises(ValueError, match="append-only"):
         other.save()
+
+
+def test_a_signature_is_judged_by_the_certificate_validity_at_the_moment_asked(
+    issued: ReportRevision,
+) -> None:
+    """X.509 validity (RFC 5280 §4.1.2.5): a certificate is valid only between notBefore and
+    notAfter. The lab's certificate starts one day before it was made, so a moment a week earlier
+    lies outside it and the same intact signature is then not trusted."""
+    import datetime as dt
+
+    data = _pdf(issued)
+    pem = issued.signing_certificate.pem if issued.signing_certificate else None
+    assert issued.issued_at is not None
+    assert signing.verify_pdf(data, trusted_pem=pem, at=issued.issued_at).valid
+    week_before = issued.issued_at - dt.timedelta(days=7)
+    early = signing.verify_pdf(data, trusted_pem=pem, at=week_before)
+    assert early.intact and not early.trusted and not early.valid
+
+
+def test_a_revision_is_verified_as_of_its_issue_time(
+    issued: ReportRevision, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """After the certificate has expired, an issued revision still verifies: the check asks for
+    validity at the issue time from the lab's own record, not at today's date."""
+    seen: dict[str, Any] = {}
+    real = signing.verify_pdf
+
+    def spy(pdf: bytes, **kwargs: Any) -> signing.SignatureCheck:
+        seen.update(kwargs)
+        return real(pdf, **kwargs)
+
+    monkeypatch.setattr(signing, "verify_pdf", spy)
+    result = verify_pdf_bytes(_pdf(issued))
+    assert result.authentic
+    assert seen["at"] == issued.issued_at

@@ -19,7 +19,7 @@ from testing.models import (
     ShearReading,
     ShearStage,
 )
-from testing.services import imports
+from testing.services import imports, readings_store
 from testing.services.errors import NotAllowed, ServiceError
 from testing.services.imports import UploadTooLarge, stage_readings_import
 from tests.conftest import Cast
@@ -86,7 +86,7 @@ def test_database_failing_at_row_250_saves_nothing_marks_failed_and_a_retry_save
 ) -> None:
     data = as_bytes(canonical_lines(500))
     written: list[int] = []
-    real_batch = imports._write_shear_batch
+    real_batch = readings_store._write_shear_batch
 
     def dying_batch(write: Any, parsed: Any, start: int, stop: int) -> None:
         if start >= 250:
@@ -94,8 +94,8 @@ def test_database_failing_at_row_250_saves_nothing_marks_failed_and_a_retry_save
         real_batch(write, parsed, start, stop)
         written.append(stop - start)
 
-    monkeypatch.setattr(imports, "BATCH_ROWS", 50)
-    monkeypatch.setattr(imports, "_write_shear_batch", dying_batch)
+    monkeypatch.setattr(readings_store, "BATCH_ROWS", 50)
+    monkeypatch.setattr(readings_store, "_write_shear_batch", dying_batch)
     first = stage_readings_import(user=cast.technician, stage=load_cell_stage, upload=_upload(data))
     assert sum(written) == 250  # the failure came after 250 rows had been sent
     assert first.state == ImportState.FAILED
@@ -105,7 +105,7 @@ def test_database_failing_at_row_250_saves_nothing_marks_failed_and_a_retry_save
     assert first.state == ImportState.FAILED and first.reason
     assert not ComputationRun.objects.exists()
 
-    monkeypatch.setattr(imports, "_write_shear_batch", real_batch)
+    monkeypatch.setattr(readings_store, "_write_shear_batch", real_batch)
     retry = stage_readings_import(user=cast.technician, stage=load_cell_stage, upload=_upload(data))
     assert retry.state == ImportState.SUCCEEDED
     assert ShearReading.objects.filter(stage=load_cell_stage).count() == 500

@@ -2,11 +2,16 @@
 
 from __future__ import annotations
 
-from typing import Any
+import math
+import re
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Any, Protocol
 
 from django import forms
 
-from testing.models import EnvelopeType, ImportLayout, SampleStatus
+from testing.importers.readings import RowError
+from testing.models import EnvelopeType, ForceUnit, ImportLayout, SampleStatus, ShearStage
 from testing.models.samples import SAMPLE_TRANSITIONS, TRANSITIONS_NEEDING_NOTE
 
 
@@ -80,29 +85,324 @@ class ReadingImportForm(forms.Form):
         field.queryset = layouts
 
 
+# --- Manual entry grid ---------------------------------------------------------------------------
+
+GRID_SHEAR_ROWS = 25
+GRID_CONSOLIDATION_ROWS = 10
+GRID_MORE_ROWS = 10
+GRID_MAX_ROWS = 500
+_CELL_NAME = re.compile(r"^(cons|shear)-(\d{1,6})-[a-z_]+$")
+_NUMBER_IN_MM = re.compile(
+    r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*mm\s*$", re.IGNORECASE
+)
+_ROW_MENTION = re.compile(r"\brow (\d+)\b")
+PHASE_PREFIX = {"consolidation": "cons", "shear": "shear"}
+
+
+@dataclass(frozen=True)
+class GridColumn:
+    """One typed column: its field suffix, its header (with unit) and how a screen reader names it."""
+
+    key: str
+    heading: str
+    spoken: str
+    help: str = ""
+
+
+@dataclass(frozen=True)
+class GridRow:
+    """One grid row as the template draws it: its inputs, the problems found and reduced values."""
+
+    phase: str
+    number: int
+    cells: list[forms.BoundField]
+    problems: list[str]
+    force_n: float | None = None
+    shear_stress_kpa: float | None = None
+    note: str = ""
+
+    @property
+    def problem_id(self) -> str:
+        return f"{PHASE_PREFIX[self.phase]}-{self.number}-problem"
+
+
+class _Reduced(Protocol):
+    """What the grid needs of the readings service's reduced row."""
+
+    @property
+    def row(self) -> int: ...
+    @property
+    def force_n(self) -> float | None: ...
+    @property
+    def shear_stress_kpa(self) -> float | None: ...
+    @property
+    def note(self) -> str: ...
+
+
+def _finite(value: float | None) -> float | None:
+    return value if value is not None and math.isfinite(value) else None
+
+
+def upward_from_settlement(typed: str) -> object:
+    """A settlement dial reading (mm, compression +) as vertical movement, upward positive
+    (vertical = −settlement). Text that is not a number goes on as typed for the checks to name."""
+    try:
+        return -float(typed)
+    except ValueError:
+        match = _NUMBER_IN_MM.match(typed)
+        return -float(match.group(1)) if match else typed
+
+
 class ManualReadingsForm(forms.Form):
-    """Shear readings typed or pasted, one per line: ``time_min, horizontal_mm, vertical_mm, force``."""
+    """The entry grid: consolidation rows (time, settlement dial) and shear rows (time, horizontal
+    and vertical displacement, force reading), each cell a field named ``<cons|shear>-<row>-<key>``.
 
-    shear_rows = forms.CharField(
-        label="Shear readings",
-        widget=forms.Textarea(attrs={"rows": 10, "spellcheck": "false"}),
-        help_text="One reading per line: elapsed time (min), horizontal displacement (mm), "
-        "vertical displacement (mm, dilation +), force reading (divisions or N). "
-        "Commas, tabs or spaces between values.",
-    )
+    The grid grows with the rows posted (an "add rows" request adds ten); empty rows are ignored.
+    :meth:`rows` gives the service's row dicts; :meth:`mark_errors` maps the service's row numbers
+    back to grid rows and cells.
+    """
 
-    def rows(self) -> list[dict[str, str]]:
-        """Lines split into named fields; the service checks the numbers and lists bad rows."""
-        text: str = self.cleaned_data["shear_rows"]
-        parsed = []
-        for line in text.splitlines():
-            if not line.strip():
-                continue
-            parts = line.replace("\t", ",").replace(";", ",").split(",")
-            if len(parts) == 1:
-                parts = line.split()
-            values = [p.strip() for p in parts]
-            keys = ("time_min", "horizontal_mm", "vertical_mm", "force")
-            row = dict(zip(keys, values + [""] * (len(keys) - len(values)), strict=False))
-            parsed.append({"phase": "shear", "traverse": "1", **row})
-        return parsed
+    def __init__(
+        self,
+        data: Any = None,
+        *,
+        stage: ShearStage,
+        add_rows: str = "",
+        require_rows: bool = True,
+        **kwargs: Any,
+    ) -> None:
+        super().__init__(data, **kwargs)
+        self.stage = stage
+        self.require_rows = require_rows
+        self.in_divisions = stage.force_unit == ForceUnit.DIVISIONS
+        self.columns = {
+            "consolidation": self._consolidation_columns(),
+            "shear": self._shear_columns(),
+        }
+        posted = self._posted_rows(data)
+        self.row_counts = {
+            "consolidation": max(GRID_CONSOLIDATION_ROWS, posted["cons"]),
+            "shear": max(GRID_SHEAR_ROWS, posted["shear"]),
+        }
+        self.too_many = any(n > GRID_MAX_ROWS for n in self.row_counts.values())
+        for phase in self.row_counts:
+            n = min(self.row_counts[phase], GRID_MAX_ROWS)
+            if add_rows == PHASE_PREFIX[phase]:
+                n = min(n + GRID_MORE_ROWS, GRID_MAX_ROWS)
+            self.row_counts[phase] = n
+        for phase, count in self.row_counts.items():
+            for number in range(1, count + 1):
+                for column in self.columns[phase]:
+                    self.fields[self.cell_name(phase, number, column.key)] = forms.CharField(
+                        required=False,
+                        max_length=40,
+                        widget=forms.TextInput(
+                            attrs={
+                                "aria-label": f"{phase.capitalize()} row {number}: {column.spoken}",
+                                "autocomplete": "off",
+                                "spellcheck": "false",
+                                "size": 8,
+                                "class": "cell",
+                            }
+                        ),
+                    )
+        self._problems: dict[tuple[str, int], list[str]] = {}
+        self._reduced: dict[int, _Reduced] = {}
+        self._origin: list[tuple[str, int]] = []
+        self._reduce_origin: list[int] = []
+
+    # --- layout ----------------------------------------------------------------------------
+
+    @property
+    def force_unit_label(self) -> str:
+        return "divisions" if self.in_divisions else "N"
+
+    def _consolidation_columns(self) -> list[GridColumn]:
+        return [
+            GridColumn("time_min", "Time (min)", "time since loading, min"),
+            GridColumn(
+                "settlement_mm",
+                "Settlement dial (mm, compression +)",
+                "settlement, mm, compression positive",
+            ),
+        ]
+
+    def _shear_columns(self) -> list[GridColumn]:
+        if self.in_divisions:
+            if self.stage.force_calibration_id:
+                how = "the linked calibration certificate turns divisions into force"
+            else:
+                how = (
+                    f"the ring constant {self.stage.force_factor_n_per_unit:g} N per division "
+                    f"(zero {self.stage.force_zero_reading:g} div) turns divisions into force"
+                )
+            force = GridColumn(
+                "force",
+                "Force reading (divisions)",
+                "force reading, proving-ring divisions",
+                f"Proving-ring dial in divisions; {how}.",
+            )
+        else:
+            force = GridColumn(
+                "force", "Force reading (N)", "force reading, N", "Load-cell reading in newtons."
+            )
+        return [
+            GridColumn("time_min", "Time (min)", "time since shearing started, min"),
+            GridColumn("horizontal_mm", "Horizontal displacement (mm)", "horizontal, mm"),
+            GridColumn(
+                "vertical_mm",
+                "Vertical displacement (mm, dilation +)",
+                "vertical, mm, dilation positive",
+            ),
+            force,
+        ]
+
+    @staticmethod
+    def cell_name(phase: str, number: int, key: str) -> str:
+        return f"{PHASE_PREFIX[phase]}-{number}-{key}"
+
+    @staticmethod
+    def _posted_rows(data: Any) -> dict[str, int]:
+        highest = {"cons": 0, "shear": 0}
+        for key in data or ():
+            match = _CELL_NAME.match(str(key))
+            if match:
+                prefix, number = match.group(1), int(match.group(2))
+                highest[prefix] = max(highest[prefix], number)
+        return highest
+
+    def grid(self, phase: str) -> list[GridRow]:
+        out = []
+        for number in range(1, self.row_counts[phase] + 1):
+            cells = [self[self.cell_name(phase, number, c.key)] for c in self.columns[phase]]
+            problems = list(self._problems.get((phase, number), []))
+            for cell in cells:
+                problems.extend(str(e) for e in cell.errors)
+            reduced = self._reduced.get(number) if phase == "shear" else None
+            out.append(
+                GridRow(
+                    phase,
+                    number,
+                    cells,
+                    problems,
+                    _finite(reduced.force_n) if reduced else None,
+                    _finite(reduced.shear_stress_kpa) if reduced else None,
+                    reduced.note if reduced else "",
+                )
+            )
+        return out
+
+    @property
+    def consolidation_grid(self) -> list[GridRow]:
+        return self.grid("consolidation")
+
+    @property
+    def shear_grid(self) -> list[GridRow]:
+        return self.grid("shear")
+
+    # --- parsing ---------------------------------------------------------------------------
+
+    def clean(self) -> dict[str, Any]:
+        data = super().clean() or {}
+        if self.too_many:
+            raise forms.ValidationError(f"At most {GRID_MAX_ROWS} rows per table.")
+        if self.require_rows and not self.rows():
+            raise forms.ValidationError("Type at least one reading before saving.")
+        return data
+
+    def _typed(self, phase: str, number: int) -> dict[str, str]:
+        data = self.cleaned_data
+        return {
+            c.key: str(data.get(self.cell_name(phase, number, c.key)) or "").strip()
+            for c in self.columns[phase]
+        }
+
+    def rows(self) -> list[dict[str, object]]:
+        """Non-empty grid rows as the service takes them: consolidation first, then shear
+        (first traverse); the settlement becomes upward-positive ``vertical_mm``."""
+        rows: list[dict[str, object]] = []
+        self._origin = []
+        for number in range(1, self.row_counts["consolidation"] + 1):
+            typed = self._typed("consolidation", number)
+            if any(typed.values()):
+                rows.append(
+                    {
+                        "phase": "consolidation",
+                        "time_min": typed["time_min"],
+                        "vertical_mm": upward_from_settlement(typed["settlement_mm"]),
+                    }
+                )
+                self._origin.append(("consolidation", number))
+        for number in range(1, self.row_counts["shear"] + 1):
+            typed = self._typed("shear", number)
+            if any(typed.values()):
+                rows.append({"phase": "shear", "traverse": 1, **typed})
+                self._origin.append(("shear", number))
+        return rows
+
+    def reduce_rows(self) -> list[dict[str, object]]:
+        """Shear rows with a force reading typed, for the reduced values beside them."""
+        rows: list[dict[str, object]] = []
+        self._reduce_origin = []
+        for number in range(1, self.row_counts["shear"] + 1):
+            typed = self._typed("shear", number)
+            if typed["force"]:
+                rows.append({"phase": "shear", "traverse": 1, **typed})
+                self._reduce_origin.append(number)
+        return rows
+
+    # --- results back onto the grid --------------------------------------------------------
+
+    def attach_reduced(self, reduced: Sequence[_Reduced]) -> list[dict[str, object]]:
+        """Reduced values for the rows of :meth:`reduce_rows`, keyed by shear grid row."""
+        self._reduced = {}
+        out: list[dict[str, object]] = []
+        for item in reduced:
+            number = self._reduce_origin[item.row - 1]
+            self._reduced[number] = item
+            force, stress = _finite(item.force_n), _finite(item.shear_stress_kpa)
+            note = item.note or ("" if force is not None else "not a finite number")
+            out.append({"row": number, "force_n": force, "shear_stress_kpa": stress, "note": note})
+        return out
+
+    def _where(self, service_row: int) -> tuple[str, int] | None:
+        if 1 <= service_row <= len(self._origin):
+            return self._origin[service_row - 1]
+        return None
+
+    def _say_row(self, service_row: int) -> str:
+        where = self._where(service_row)
+        return f"{where[0]} row {where[1]}" if where else f"row {service_row}"
+
+    def mark_errors(self, errors: Sequence[RowError]) -> list[dict[str, str]]:
+        """The service's bad rows in grid terms; marks each bad row and cell for the template."""
+        self._problems = {}
+        listed = []
+        for error in errors:
+            reason = _ROW_MENTION.sub(lambda m: self._say_row(int(m.group(1))), error.reason)
+            where = self._where(error.row)
+            column, value = error.column, error.value
+            if where is not None:
+                phase, number = where
+                key = (
+                    "settlement_mm"
+                    if phase == "consolidation" and column == "vertical_mm"
+                    else column
+                )
+                match = next((c for c in self.columns[phase] if c.key == key), None)
+                if match is not None:
+                    column = match.heading
+                    value = self._typed(phase, number)[key]
+                    widget = self.fields[self.cell_name(phase, number, key)].widget
+                    widget.attrs["aria-invalid"] = "true"
+                    widget.attrs["aria-describedby"] = f"{PHASE_PREFIX[phase]}-{number}-problem"
+                self._problems.setdefault(where, []).append(f"{column}: {reason}")
+            listed.append(
+                {
+                    "row": self._say_row(error.row).capitalize(),
+                    "column": column,
+                    "value": value,
+                    "reason": reason,
+                }
+            )
+        return listed

@@ -28,5 +28,10 @@ urlpatterns = [
     ),
     path("stages/<int:stage_id>/import/", views.stage_import, name="stage-import"),
     path("stages/<int:stage_id>/readings/", views.stage_enter, name="stage-enter"),
+    path(
+        "stages/<int:stage_id>/readings/reduce/",
+        views.stage_enter_reduce,
+        name="stage-enter-reduce",
+    ),
     path("assets/plotly-<str:version>.min.js", views.plotly_js, name="plotly-js"),
 ]

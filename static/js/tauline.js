@@ -80,9 +80,136 @@
     });
   }
 
+  /* The manual-entry grid: reduced values while typing (debounced POST of the grid), "Add 10 rows"
+     in place, Enter moves down a row, and a multi-line paste (tabs or commas) spreads over the
+     grid from the cell it lands in. Without this script the same buttons work by round trip. */
+  function entryGrid() {
+    var form = document.getElementById("entry-grid");
+    if (!form || !window.fetch || !window.FormData) { return; }
+    var url = form.getAttribute("data-reduce-url");
+    var status = document.getElementById("grid-status");
+    var shear = form.querySelector('tbody[data-grid="shear"]');
+    var timer = null;
+    var sent = 0;
+
+    function rowsOf(body) { return Array.prototype.slice.call(body.querySelectorAll("tr[data-row]")); }
+    function cellsOf(tr) { return Array.prototype.slice.call(tr.querySelectorAll("input.cell")); }
+    function show(tr, key, text) {
+      var el = tr.querySelector('[data-out="' + key + '"]');
+      if (el) { el.textContent = text; }
+    }
+
+    function reduce() {
+      var mine = ++sent;
+      fetch(url, { method: "POST", body: new FormData(form), credentials: "same-origin",
+                   headers: { "Accept": "application/json" } })
+        .then(function (response) { return response.ok ? response.json() : Promise.reject(response.status); })
+        .then(function (body) {
+          if (mine !== sent || !shear) { return; }
+          var byRow = {};
+          body.rows.forEach(function (r) { byRow[r.row] = r; });
+          rowsOf(shear).forEach(function (tr) {
+            var r = byRow[tr.getAttribute("data-row")];
+            show(tr, "force_n", r && r.force_n !== null ? r.force_n.toFixed(1) : "");
+            show(tr, "shear_stress_kpa", r && r.shear_stress_kpa !== null ? r.shear_stress_kpa.toFixed(1) : "");
+            show(tr, "note", r ? r.note : "");
+          });
+          if (status) { status.textContent = ""; }
+        })
+        .catch(function () {
+          if (mine === sent && status) {
+            status.textContent = "Reduced values could not be worked out just now; they show after saving or with \u201cShow reduced values\u201d.";
+          }
+        });
+    }
+    function later() {
+      window.clearTimeout(timer);
+      timer = window.setTimeout(reduce, 250);
+    }
+
+    function addRows(body, count) {
+      var rows = rowsOf(body);
+      var last = rows[rows.length - 1];
+      var first = null;
+      for (var k = 0; k < count; k++) {
+        var n = rows.length + k + 1;
+        var tr = last.cloneNode(true);
+        tr.setAttribute("data-row", String(n));
+        tr.classList.remove("bad");
+        tr.querySelector("th").textContent = String(n);
+        cellsOf(tr).forEach(function (input) {
+          input.name = input.name.replace(/-\d+-/, "-" + n + "-");
+          input.id = input.id.replace(/-\d+-/, "-" + n + "-");
+          input.setAttribute("aria-label", input.getAttribute("aria-label").replace(/row \d+/, "row " + n));
+          input.removeAttribute("aria-invalid");
+          input.removeAttribute("aria-describedby");
+          input.value = "";
+        });
+        tr.querySelectorAll("[data-out]").forEach(function (el) { el.textContent = ""; });
+        tr.querySelectorAll(".problem").forEach(function (el) { el.remove(); });
+        var note = tr.querySelector(".row-note");
+        if (note) { note.id = note.id.replace(/-\d+-/, "-" + n + "-"); }
+        body.appendChild(tr);
+        if (!first) { first = tr; }
+      }
+      return first;
+    }
+
+    form.querySelectorAll("[data-add-rows]").forEach(function (button) {
+      button.addEventListener("click", function (event) {
+        event.preventDefault();
+        var body = form.querySelector('tbody[data-grid="' + button.getAttribute("data-add-rows") + '"]');
+        var first = addRows(body, 10);
+        if (first) { cellsOf(first)[0].focus(); }
+        if (status) { status.textContent = "10 rows added."; }
+      });
+    });
+
+    form.addEventListener("input", function (event) {
+      if (shear && shear.contains(event.target)) { later(); }
+    });
+
+    form.addEventListener("keydown", function (event) {
+      var input = event.target;
+      if (event.key !== "Enter" || !input.classList || !input.classList.contains("cell")) { return; }
+      event.preventDefault();
+      var tr = input.closest("tr");
+      var next = tr.nextElementSibling;
+      if (!next) { next = addRows(tr.parentNode, 10); }
+      cellsOf(next)[cellsOf(tr).indexOf(input)].focus();
+    });
+
+    form.addEventListener("paste", function (event) {
+      var input = event.target;
+      if (!input.classList || !input.classList.contains("cell")) { return; }
+      var text = (event.clipboardData || window.clipboardData).getData("text");
+      var lines = text.replace(/\r\n?/g, "\n").replace(/\n+$/, "").split("\n");
+      var tabbed = text.indexOf("\t") >= 0;
+      if (!tabbed && lines.length < 2 && (text.match(/[,;]/g) || []).length < 2) { return; }
+      event.preventDefault();
+      var tr = input.closest("tr");
+      var body = tr.parentNode;
+      var column = cellsOf(tr).indexOf(input);
+      var start = rowsOf(body).indexOf(tr);
+      var needed = start + lines.length - rowsOf(body).length;
+      if (needed > 0) { addRows(body, Math.ceil(needed / 10) * 10); }
+      var rows = rowsOf(body);
+      lines.forEach(function (line, i) {
+        var values = tabbed ? line.split("\t") : line.split(/[,;]/);
+        var cells = cellsOf(rows[start + i]);
+        values.forEach(function (value, j) {
+          if (cells[column + j]) { cells[column + j].value = value.trim(); }
+        });
+      });
+      if (status) { status.textContent = lines.length + " pasted row(s) spread over the grid."; }
+      if (body === shear) { later(); }
+    });
+  }
+
   document.addEventListener("DOMContentLoaded", function () {
     drawCharts(document);
     followRuns();
     previewInPlace();
+    entryGrid();
   });
 })();

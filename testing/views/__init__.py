@@ -14,6 +14,7 @@ from testing.views.records import (
 from testing.views.tests import (
     stage_detail,
     stage_enter,
+    stage_enter_reduce,
     stage_exclude_view,
     stage_import,
     stage_import_preview,
@@ -40,6 +41,7 @@ __all__ = [
     "specimen_detail",
     "stage_detail",
     "stage_enter",
+    "stage_enter_reduce",
     "stage_exclude_view",
     "stage_import",
     "stage_import_preview",

@@ -5,6 +5,7 @@ from __future__ import annotations
 from typing import Any
 
 from django.contrib import messages
+from django.core.exceptions import PermissionDenied
 from django.http import HttpRequest, HttpResponse, JsonResponse
 from django.shortcuts import redirect, render
 from django.urls import reverse
@@ -174,7 +175,7 @@ def _stage_page(
             "-uploaded_at", "-id"
         )[:10],
         "import_form": ReadingImportForm(layouts=_layouts()),
-        "manual_form": ManualReadingsForm(),
+        "manual_form": ManualReadingsForm(stage=stage),
         "can_enter": access.can_enter_readings(request.user),
         "released": stage.test.released_at is not None,
         "max_upload_mb": imports.max_upload_bytes() / 1_000_000,
@@ -265,31 +266,68 @@ def stage_import(request: HttpRequest, stage_id: int) -> HttpResponse:
     return _stage_page(request, stage, status=400, rejected=record)
 
 
+def _entry_form(request: HttpRequest, stage: ShearStage, **kwargs: Any) -> ManualReadingsForm:
+    return ManualReadingsForm(
+        request.POST, stage=stage, add_rows=request.POST.get("more", ""), **kwargs
+    )
+
+
+def _grid_page(
+    request: HttpRequest, stage: ShearStage, form: ManualReadingsForm, *, status: int, **extra: Any
+) -> HttpResponse:
+    """The stage page with the grid as typed, its reduced values filled in (no script needed)."""
+    if form.is_bound and not form.errors:
+        form.attach_reduced(imports.manual_rows_reduce(stage, form.reduce_rows()))
+    return _stage_page(request, stage, status=status, manual_form=form, **extra)
+
+
 @staff_page
 @require_POST
 def stage_enter(request: HttpRequest, stage_id: int) -> HttpResponse:
-    """Save readings typed or pasted by hand (shear phase, first traverse)."""
+    """Save readings typed on the entry grid (consolidation and shear, first traverse). "Add 10
+    rows" and "Show reduced values" re-draw the grid as typed and save nothing."""
     stage = access.stage_get_for_user(user=request.user, stage_id=stage_id)
-    form = ManualReadingsForm(request.POST)
+    keep_typing = bool(request.POST.get("more") or request.POST.get("check"))
+    form = _entry_form(request, stage, require_rows=not keep_typing)
     if not form.is_valid():
-        return _stage_page(request, stage, status=400, manual_form=form)
+        return _grid_page(request, stage, form, status=400)
+    if keep_typing:
+        return _grid_page(request, stage, form, status=200)
     try:
-        _consolidation, shear = imports.stage_readings_enter(
+        consolidation, shear = imports.stage_readings_enter(
             user=staff_user(request), stage=stage, rows=form.rows()
         )
     except imports.ReadingsRejected as exc:
-        return _stage_page(
+        return _grid_page(
             request,
             stage,
+            form,
             status=400,
-            manual_form=form,
-            manual_errors=[e.as_dict() for e in exc.errors],
+            manual_errors=form.mark_errors(exc.errors),
             manual_error=str(exc),
         )
     except ServiceError as exc:
-        return _stage_page(request, stage, status=400, manual_form=form, manual_error=str(exc))
+        return _grid_page(request, stage, form, status=400, manual_error=str(exc))
     messages.success(
         request,
-        f"Saved {shear} shear readings for stage {stage.stage_number}. The stage is being reduced.",
+        f"Saved {consolidation} consolidation and {shear} shear readings for stage "
+        f"{stage.stage_number}. The stage is being reduced.",
     )
     return redirect("test-detail", test_id=stage.test_id)
+
+
+@staff_page
+@require_POST
+def stage_enter_reduce(request: HttpRequest, stage_id: int) -> JsonResponse:
+    """Force [N] and shear stress on the nominal area [kPa] for each typed shear row of the grid,
+    from the stage's calibration; saves nothing."""
+    stage = access.stage_get_for_user(user=request.user, stage_id=stage_id)
+    if not access.can_enter_readings(request.user):
+        raise PermissionDenied("Only technicians and the lab manager enter readings.")
+    form = _entry_form(request, stage, require_rows=False)
+    if not form.is_valid():
+        return JsonResponse({"error": "Some cells could not be read.", "rows": []}, status=400)
+    rows = form.attach_reduced(imports.manual_rows_reduce(stage, form.reduce_rows()))
+    response = JsonResponse({"rows": rows})
+    response["Cache-Control"] = "no-store"
+    return response

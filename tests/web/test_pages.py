@@ -144,7 +144,16 @@ def test_no_action_is_open_to_clients_or_signed_out_users(
         reverse("test-recompute", args=[shear_set_a.test.pk]): {"reason": "x"},
         reverse("stage-exclude", args=[stage.pk]): {"envelope_type": "peak", "reason": "x"},
         reverse("stage-include", args=[stage.pk]): {"envelope_type": "peak"},
-        reverse("stage-enter", args=[stage.pk]): {"shear_rows": "0,0,0,0\n1,1,0,5"},
+        reverse("stage-enter", args=[stage.pk]): {
+            "shear-1-time_min": "0",
+            "shear-1-horizontal_mm": "0",
+            "shear-1-vertical_mm": "0",
+            "shear-1-force": "0",
+            "shear-2-time_min": "1",
+            "shear-2-horizontal_mm": "1",
+            "shear-2-vertical_mm": "0",
+            "shear-2-force": "5",
+        },
     }
     expected = 302 if persona in NOBODY else 404
     for url, data in posts.items():

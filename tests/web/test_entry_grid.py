@@ -26,16 +26,21 @@ RING_CONSTANT_N_PER_DIV = 1.52  # an invented ring, set on the stage below
 BOX_AREA_MM2 = 60.0 * 60.0  # make_stage's 60 mm square box
 
 
-@pytest.fixture
-def ring(cast: Cast, records_a: Records) -> ShearStage:
+def make_ring_stage(cast: Cast, records: Records) -> ShearStage:
+    """A lever-loaded stage read through a proving ring of 1.52 N per division, zero 0."""
     return make_stage(
         cast,
-        records_a,
+        records,
         1,
         force_unit="div",
         force_factor_n_per_unit=RING_CONSTANT_N_PER_DIV,
         force_zero_reading=0.0,
     )
+
+
+@pytest.fixture
+def ring(cast: Cast, records_a: Records) -> ShearStage:
+    return make_ring_stage(cast, records_a)
 
 
 @pytest.fixture
@@ -234,7 +239,7 @@ def test_a_rejected_grid_is_drawn_again_as_typed_with_each_bad_row_marked(
     assert grid.inputs["cons-2-time_min"].get("aria-invalid") == "true"
     assert "aria-invalid" not in grid.inputs["shear-3-time_min"]
     text = response.content.decode()
-    assert "Nothing was saved" in text
+    assert "nothing was saved" in text
     assert "Shear row 3" in text and "Consolidation row 2" in text
     # The service's "row n" is said in grid terms.
     assert "same time as shear row 2" in text

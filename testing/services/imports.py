@@ -13,8 +13,7 @@ from __future__ import annotations
 
 import hashlib
 import logging
-from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
+from collections.abc import Mapping
 from pathlib import PurePosixPath
 from typing import Any, Protocol
 
@@ -25,16 +24,13 @@ from django.db import DatabaseError, connection, transaction
 from django.utils import timezone
 
 from testing import access
-from testing.importers.layout import CANONICAL_LAYOUT, ColumnMap, Layout, LayoutError
+from testing.importers.layout import CANONICAL_LAYOUT, Layout, LayoutError
 from testing.importers.readings import (
-    ParsedReadings,
     Preview,
     RowError,
-    check_force_unit,
     parse_readings,
     preview_readings,
 )
-from testing.importers.rows import validate_rows
 from testing.importers.xlsx import UnsafeSpreadsheet, check_archive, is_xlsx
 from testing.models import (
     ForceUnit,
@@ -80,12 +76,12 @@ def _max_unpacked_bytes() -> int:
     return 20 * max_upload_bytes()
 
 
-def _require_technician(user: User) -> None:
+def require_technician(user: User) -> None:
     if not access.can_enter_readings(user):
         raise NotAllowed("Only technicians and the lab manager can enter or import readings.")
 
 
-def _require_open(stage: ShearStage) -> None:
+def require_open(stage: ShearStage) -> None:
     if stage.test.released_at is not None:
         raise ServiceError("This test set has been reported; its readings cannot change.")
 
@@ -152,7 +148,7 @@ def import_layout_save(
     *, user: User, name: str, columns: Mapping[str, Any], **options: Any
 ) -> ImportLayout:
     """Save a reusable column mapping for the lab; it must make a usable layout."""
-    _require_technician(user)
+    require_technician(user)
     try:
         Layout.from_mapping(name, {"columns": columns, **options})
     except LayoutError as exc:
@@ -170,7 +166,7 @@ def request_stage_reduction(*, stage: ShearStage, user: User | None, reason: str
     stage_reduction_request(stage=stage, user=user, reason=reason)
 
 
-def _stage_force_unit(stage: ShearStage) -> str:
+def stage_force_unit(stage: ShearStage) -> str:
     return "div" if stage.force_unit == ForceUnit.DIVISIONS else "N"
 
 
@@ -186,7 +182,7 @@ def stage_readings_preview(
     n: int = 10,
 ) -> Preview:
     """The header, the detected columns and the first rows; saves nothing."""
-    _require_technician(user)
+    require_technician(user)
     data = _read_capped(upload)
     try:
         _refuse_misnamed(data, upload.name or "")
@@ -223,8 +219,8 @@ def stage_readings_import(
 
     Raises :class:`UploadTooLarge` (nothing stored) and ``ServiceError`` for refusals.
     """
-    _require_technician(user)
-    _require_open(stage)
+    require_technician(user)
+    require_open(stage)
     parser_layout = layout_for(layout)
     data = _read_capped(upload)
     digest = hashlib.sha256(data).hexdigest()
@@ -277,7 +273,7 @@ def stage_readings_import(
             data,
             filename=name,
             layout=parser_layout,
-            stage_force_unit=_stage_force_unit(stage),
+            stage_force_unit=stage_force_unit(stage),
             max_uncompressed_bytes=_max_unpacked_bytes(),
         )
     except UnsafeSpreadsheet as exc:
@@ -357,196 +353,6 @@ def _mark_failed(record: ReadingImport, exc: Exception) -> None:
     except DatabaseError:
         log.exception("Import %s failed and could not be marked failed", record.pk)
         record.state, record.reason = ImportState.FAILED, reason
-
-
-# --- manual entry -------------------------------------------------------------------------------
-
-_MANUAL_LAYOUT_COLUMNS = {
-    "time": ColumnMap("time_min", "min"),
-    "horizontal": ColumnMap("horizontal_mm", "mm"),
-    "vertical": ColumnMap("vertical_mm", "mm"),
-    "phase": ColumnMap("phase"),
-    "traverse": ColumnMap("traverse"),
-}
-
-
-def _manual_layout(stage: ShearStage) -> Layout:
-    unit = _stage_force_unit(stage)
-    return Layout(
-        name="manual entry",
-        columns={**_MANUAL_LAYOUT_COLUMNS, "force": ColumnMap("force", unit)},
-    )
-
-
-def validate_row_objects(
-    stage: ShearStage, rows: Sequence[object], layout: Layout = CANONICAL_LAYOUT
-) -> ParsedReadings:
-    """Check rows given as objects keyed by ``layout``'s column names with the importer's rules
-    (the force unit must match the stage's, as for a file). A missing ``phase`` means shear, a
-    missing ``traverse`` 1; anything that is not an object is a bad row. Row numbers in errors
-    count the rows from 1."""
-    result = ParsedReadings()
-    check_force_unit(layout, _stage_force_unit(stage), result)
-    if not result.ok:
-        return result
-    quantities = list(layout.columns)
-    columns = {q: i for i, q in enumerate(quantities)}
-    names = [layout.columns[q].column for q in quantities]
-    defaults = {"phase": "shear", "traverse": 1}
-    cells: list[tuple[int, list[object]]] = []
-    for number, row in enumerate(rows, start=1):
-        if not isinstance(row, Mapping):
-            result.add_error(
-                RowError(number, "(row)", str(row)[:60], "a row must be an object of column: value")
-            )
-            continue
-        values: list[object] = []
-        for q, name in zip(quantities, names, strict=True):
-            value = row.get(name)
-            values.append(defaults[q] if value in (None, "") and q in defaults else value)
-        cells.append((number, values))
-    validate_rows(cells, columns, layout, None, result)
-    if result.ok and result.rows_read == 0:
-        result.add_error(RowError(1, "(row)", "", "no readings were given"))
-    return result
-
-
-def validate_manual_rows(stage: ShearStage, rows: Sequence[Mapping[str, object]]) -> ParsedReadings:
-    """Check grid rows with the importer's rules. Each row: ``phase`` (consolidation/shear,
-    default shear), ``time_min``, ``horizontal_mm``, ``vertical_mm`` (upward positive),
-    ``force`` (divisions or N, as the stage records) and optionally ``traverse``. Row numbers in
-    errors count grid rows from 1."""
-    return validate_row_objects(stage, rows, _manual_layout(stage))
-
-
-def _store_rows(
-    *,
-    user: User,
-    stage: ShearStage,
-    rows: Sequence[object],
-    layout: Layout,
-    source: str,
-    reason: str,
-    why: str,
-) -> tuple[ParsedReadings, int]:
-    """Check ``rows`` (raising :class:`ReadingsRejected` with every bad row, nothing saved), then
-    replace the phases given in one transaction with the audit row and a reduction request.
-    Returns the readings and the number of rows replaced."""
-    _require_technician(user)
-    _require_open(stage)
-    parsed = validate_row_objects(stage, rows, layout)
-    if not parsed.ok:
-        raise ReadingsRejected(parsed.error_summary, parsed.errors)
-    with transaction.atomic():
-        locked = ShearStage.objects.select_for_update().get(pk=stage.pk)
-        before = readings_state(locked.pk)
-        replaced = replace_readings(locked, parsed)
-        readings_change_record(
-            stage=locked,
-            user=user,
-            source=source,
-            before=before,
-            after=parsed_state(before, parsed),
-            reason=reason,
-        )
-        request_stage_reduction(stage=locked, user=user, reason=why)
-    return parsed, replaced
-
-
-def stage_readings_enter(
-    *, user: User, stage: ShearStage, rows: Sequence[Mapping[str, object]], reason: str = ""
-) -> tuple[int, int]:
-    """Save readings typed on the entry grid, replacing the phases entered; returns the counts
-    (consolidation, shear). Raises :class:`ReadingsRejected` listing every bad row (nothing saved)."""
-    parsed, _ = _store_rows(
-        user=user,
-        stage=stage,
-        rows=rows,
-        layout=_manual_layout(stage),
-        source=ReadingsSource.ENTERED,
-        reason=reason,
-        why="readings entered by hand",
-    )
-    return int(parsed.consolidation_elapsed_min.size), int(parsed.shear_elapsed_min.size)
-
-
-@dataclass(frozen=True)
-class RowsStored:
-    consolidation_rows: int
-    shear_rows: int
-    replaced_rows: int
-
-
-def stage_readings_rows_import(
-    *,
-    user: User,
-    stage: ShearStage,
-    rows: Sequence[object],
-    layout: ImportLayout | None = None,
-    reason: str = "",
-) -> RowsStored:
-    """Save readings sent as rows (objects keyed by the layout's column names; the canonical CSV
-    layout by default), with the file importer's checks and its all-or-nothing rule: the phases
-    given replace the stage's readings of that phase. Raises :class:`ReadingsRejected` listing
-    every bad row (nothing saved)."""
-    parsed, replaced = _store_rows(
-        user=user,
-        stage=stage,
-        rows=rows,
-        layout=layout_for(layout),
-        source=ReadingsSource.STORED,
-        reason=reason,
-        why="readings sent as rows",
-    )
-    return RowsStored(
-        int(parsed.consolidation_elapsed_min.size), int(parsed.shear_elapsed_min.size), replaced
-    )
-
-
-@dataclass(frozen=True)
-class ReducedRow:
-    """What the grid shows beside a typed row (None where the row cannot be reduced yet)."""
-
-    row: int
-    force_n: float | None
-    shear_stress_kpa: float | None
-    note: str = ""
-
-
-def manual_rows_reduce(stage: ShearStage, rows: Sequence[Mapping[str, object]]) -> list[ReducedRow]:
-    """Force [N] and shear stress on the nominal area [kPa] for each shear row, as typed.
-
-    Uses the stage's force calibration (the certificate if linked, else its factor and zero).
-    """
-    from testing.analysis import AnalysisError, BoxGeometry
-    from testing.services.equipment import stage_force_calibration
-
-    test = stage.test
-    box = (
-        BoxGeometry.circular(test.box_length_mm)
-        if test.box_shape == "circular"
-        else BoxGeometry.rectangular(test.box_length_mm, test.box_width_mm or test.box_length_mm)
-    )
-    calibration = stage_force_calibration(stage)
-    out: list[ReducedRow] = []
-    for number, row in enumerate(rows, start=1):
-        if (row.get("phase") or "shear") != "shear":
-            continue
-        try:
-            reading = float(str(row.get("force")).replace(",", "."))
-            force = float(calibration.force_n([reading])[0])
-        except (TypeError, ValueError) as exc:
-            out.append(
-                ReducedRow(
-                    number,
-                    None,
-                    None,
-                    str(exc) if isinstance(exc, AnalysisError) else "not a number",
-                )
-            )
-            continue
-        out.append(ReducedRow(number, force, 1000.0 * force / box.plan_area_mm2))
-    return out
 
 
 # --- AGS4 import --------------------------------------------------------------------------------

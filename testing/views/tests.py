@@ -20,7 +20,7 @@ from testing.forms import (
     StageIncludeForm,
 )
 from testing.models import EnvelopeType, ImportLayout, ImportState, ShearStage
-from testing.services import imports
+from testing.services import imports, readings_entry
 from testing.services.computation import stage_exclude, stage_include, test_recompute_request
 from testing.services.errors import ServiceError
 from testing.views import charts
@@ -277,7 +277,7 @@ def _grid_page(
 ) -> HttpResponse:
     """The stage page with the grid as typed, its reduced values filled in (no script needed)."""
     if form.is_bound and not form.errors:
-        form.attach_reduced(imports.manual_rows_reduce(stage, form.reduce_rows()))
+        form.attach_reduced(readings_entry.manual_rows_reduce(stage, form.reduce_rows()))
     return _stage_page(request, stage, status=status, manual_form=form, **extra)
 
 
@@ -294,7 +294,7 @@ def stage_enter(request: HttpRequest, stage_id: int) -> HttpResponse:
     if keep_typing:
         return _grid_page(request, stage, form, status=200)
     try:
-        consolidation, shear = imports.stage_readings_enter(
+        consolidation, shear = readings_entry.stage_readings_enter(
             user=staff_user(request), stage=stage, rows=form.rows()
         )
     except imports.ReadingsRejected as exc:
@@ -327,7 +327,7 @@ def stage_enter_reduce(request: HttpRequest, stage_id: int) -> JsonResponse:
     form = _entry_form(request, stage, require_rows=False)
     if not form.is_valid():
         return JsonResponse({"error": "Some cells could not be read.", "rows": []}, status=400)
-    rows = form.attach_reduced(imports.manual_rows_reduce(stage, form.reduce_rows()))
+    rows = form.attach_reduced(readings_entry.manual_rows_reduce(stage, form.reduce_rows()))
     response = JsonResponse({"rows": rows})
     response["Cache-Control"] = "no-store"
     return response

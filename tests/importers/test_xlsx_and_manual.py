@@ -17,13 +17,8 @@ from django.core.files.uploadedfile import SimpleUploadedFile
 from openpyxl import Workbook
 
 from testing.models import ConsolidationReading, ImportLayout, ShearReading, ShearStage
-from testing.services.imports import (
-    ReadingsRejected,
-    import_layout_save,
-    manual_rows_reduce,
-    stage_readings_enter,
-    stage_readings_import,
-)
+from testing.services.imports import ReadingsRejected, import_layout_save, stage_readings_import
+from testing.services.readings_entry import manual_rows_reduce, stage_readings_enter
 from tests.conftest import Cast
 
 INCH_MM = 25.4  # NIST SP 811, App. B (exact)

@@ -55,8 +55,9 @@ from testing.services.computation import stage_exclude, stage_include, stage_red
 from testing.services.edits import record_update, specimen_update, stage_update
 from testing.services.equipment import apparatus_create
 from testing.services.errors import NotAllowed, ServiceError
-from testing.services.imports import stage_readings_enter, stage_readings_import
+from testing.services.imports import stage_readings_import
 from testing.services.lifecycle import sample_transition
+from testing.services.readings_entry import stage_readings_enter
 from testing.services.records import borehole_create, specimen_create
 from testing.services.shear_setup import shear_test_create, stage_create, stage_readings_store
 from tests.conftest import Cast, Records

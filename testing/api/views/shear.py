@@ -28,7 +28,7 @@ from testing.models import (
     ShearReading,
     ShearStage,
 )
-from testing.services import computation, imports, shear_setup
+from testing.services import computation, imports, readings_entry, shear_setup
 
 
 @extend_schema_view(create=extend_schema(request=s.TestSetIn, responses={201: s.TestSetOut}))
@@ -138,7 +138,7 @@ class StageViewSet(CreateViaServiceMixin, RecordViewSet):
         }
         if multipart:
             return _import_answer(imports.stage_readings_import(upload=data["file"], **common))
-        stored = imports.stage_readings_rows_import(rows=data["rows"], **common)
+        stored = readings_entry.stage_readings_rows_import(rows=data["rows"], **common)
         return _upload_answer(
             ImportState.SUCCEEDED,
             consolidation_rows=stored.consolidation_rows,

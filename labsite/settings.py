@@ -302,6 +302,8 @@ SPECTACULAR_SETTINGS = {
         "RunKindEnum": "testing.models.results.RunKind",
         "ForceDeviceKindEnum": "testing.models.equipment.ForceDeviceKind",
         "GaugeKindEnum": "testing.models.equipment.GaugeKind",
+        "RunStateEnum": "testing.models.results.RunState",
+        "RevisionStateEnum": "reports.models.reports.RevisionState",
     },
 }
 

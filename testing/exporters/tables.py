@@ -14,6 +14,7 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 
 from testing import selectors
+from testing.exporters.setup_values import applied_normal_stress_kpa, box_area_mm2
 from testing.models import DirectShearTest
 
 DANGEROUS_FIRST = ("=", "+", "-", "@", "\t", "\r")
@@ -144,13 +145,11 @@ CAUTION = (
 
 def results_tables(tests: Iterable[DirectShearTest]) -> tuple[Table, Table]:
     """Stage results and envelopes of the given test sets (latest rows; set-up data if none)."""
-    from testing.exporters.ags import _applied_normal_stress_kpa, _area_mm2
-
     stages = Table("Stage results", STAGE_COLUMNS)
     envelopes = Table("Envelopes", ENVELOPE_COLUMNS)
     for test in tests:
         results = selectors.latest_stage_results(test=test)
-        area = _area_mm2(test)
+        area = box_area_mm2(test)
         for stage in test.stages.select_related("specimen__sample__borehole").order_by(
             "stage_number"
         ):
@@ -166,7 +165,7 @@ def results_tables(tests: Iterable[DirectShearTest]) -> tuple[Table, Table]:
                     float(sp.depth_top_m),
                     stage.stage_number,
                     sp.description or sp.sample.description,
-                    _applied_normal_stress_kpa(stage, area),
+                    applied_normal_stress_kpa(stage, area),
                     r.failure_shear_stress_kpa if r else None,
                     r.failure_normal_stress_kpa if r else None,
                     r.failure_horizontal_mm if r else None,

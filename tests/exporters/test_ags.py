@@ -16,7 +16,8 @@ from django.core.management.base import CommandError
 from django.http import Http404
 from python_ags4 import AGS4
 
-from testing.exporters.ags import ags_number, ags_text, project_ags_export
+from testing.exporters.ags import project_ags_export
+from testing.exporters.ags_dictionary import ags_number, ags_text
 from testing.models import (
     Borehole,
     EnvelopeResult,

@@ -7,7 +7,8 @@ from typing import Any
 
 from django.core.management.base import BaseCommand, CommandError, CommandParser
 
-from testing.exporters.ags import AGS_VERSIONS, project_ags_export
+from testing.exporters.ags import project_ags_export
+from testing.exporters.ags_dictionary import AGS_VERSIONS
 from testing.models import Project
 
 

@@ -341,6 +341,30 @@ def _data_preparers(revision: ReportRevision) -> set[int]:
     return ids
 
 
+def sign_refusal(user: User, revision: ReportRevision, meaning: str) -> str:
+    """Why ``user`` may not sign ``revision`` with ``meaning`` ("" when they may): the separation
+    of duties, as the sign-off services enforce it and the pages show it."""
+    if meaning == SignOffMeaning.CHECKED:
+        if not access.can_check(user):
+            return "Only a checker can check a report."
+        if user.pk in _data_preparers(revision):
+            return "The checker must be someone other than the person who prepared the data."
+        return ""
+    if not access.can_approve(user):
+        verb = "approve" if meaning == SignOffMeaning.APPROVED else "issue"
+        return f"Only an approving engineer can {verb} a report."
+    if user.pk in _data_preparers(revision) or user.pk == revision.checked_by_id:
+        who = "approver" if meaning == SignOffMeaning.APPROVED else "issuer"
+        return f"The {who} must be someone other than the preparer and the checker."
+    return ""
+
+
+def _refuse_unless_may_sign(user: User, revision: ReportRevision, meaning: str) -> None:
+    refusal = sign_refusal(user, revision, meaning)
+    if refusal:
+        raise NotAllowed(refusal)
+
+
 def revision_check(
     *,
     user: User,
@@ -349,10 +373,7 @@ def revision_check(
     expected_content_sha256: str | None = None,
 ) -> ReportRevision:
     """Checked: a second person, holding the checker role, who prepared neither data nor report."""
-    if not access.can_check(user):
-        raise NotAllowed("Only a checker can check a report.")
-    if user.pk in _data_preparers(revision):
-        raise NotAllowed("The checker must be someone other than the person who prepared the data.")
+    _refuse_unless_may_sign(user, revision, SignOffMeaning.CHECKED)
     return _sign(
         user=user,
         revision=revision,
@@ -373,10 +394,7 @@ def revision_approve(
     expected_content_sha256: str | None = None,
 ) -> ReportRevision:
     """Approved: an approving engineer who neither prepared nor checked it."""
-    if not access.can_approve(user):
-        raise NotAllowed("Only an approving engineer can approve a report.")
-    if user.pk in _data_preparers(revision) or user.pk == revision.checked_by_id:
-        raise NotAllowed("The approver must be someone other than the preparer and the checker.")
+    _refuse_unless_may_sign(user, revision, SignOffMeaning.APPROVED)
     return _sign(
         user=user,
         revision=revision,
@@ -394,10 +412,7 @@ def revision_issue(*, user: User, revision: ReportRevision, password: str | None
 
     Claim first: many requests may arrive for the same revision, and exactly one may win.
     """
-    if not access.can_approve(user):
-        raise NotAllowed("Only an approving engineer can issue a report.")
-    if user.pk in _data_preparers(revision) or user.pk == revision.checked_by_id:
-        raise NotAllowed("The issuer must be someone other than the preparer and the checker.")
+    _refuse_unless_may_sign(user, revision, SignOffMeaning.ISSUED)
     _require_password(
         user=user, password=password, revision=revision, meaning=SignOffMeaning.ISSUED
     )

@@ -17,7 +17,7 @@ from django.shortcuts import redirect, render
 from django.views.decorators.http import require_http_methods, require_POST
 
 from reports import forms, selectors, services
-from reports.models import ReportRevision
+from reports.models import ReportRevision, RevisionState, SignOffMeaning
 from reports.rendering.charts import report_charts, to_plotly
 from reports.rendering.html import render_report_html
 from reports.verification import MAX_UPLOAD_BYTES, verify_number_and_hash, verify_pdf_bytes
@@ -95,8 +95,24 @@ def revision_detail(request: HttpRequest, pk: int) -> HttpResponse:
                 }
             ),
             "charts_json": charts,
+            "sign_refusal": _next_sign_refusal(request, revision),
         },
     )
+
+
+_NEXT_SIGN_OFF = {
+    RevisionState.DRAFT: SignOffMeaning.CHECKED,
+    RevisionState.CHECKED: SignOffMeaning.APPROVED,
+    RevisionState.APPROVED: SignOffMeaning.ISSUED,
+}
+
+
+def _next_sign_refusal(request: HttpRequest, revision: ReportRevision) -> str:
+    """Why the signed-in person may not give the revision's next sign-off ("" if they may)."""
+    meaning = _NEXT_SIGN_OFF.get(RevisionState(revision.state))
+    if meaning is None:
+        return ""
+    return services.sign_refusal(_staff(request), revision, meaning)
 
 
 @login_required

@@ -158,3 +158,31 @@ def test_fifty_parallel_issue_requests_issue_once(cast: Cast, draft: ReportRevis
         ReportRevision.objects.filter(report=draft.report, state__in=["issuing", "issued"]).count()
         == 1
     )
+
+
+def test_the_page_offers_the_next_sign_off_only_to_who_may_give_it(
+    cast: Cast, draft: ReportRevision
+) -> None:
+    """The revision page shows the sign form to a person the service would accept and, to anyone
+    else, the service's own reason instead of a form that would be refused."""
+    from django.test import Client
+    from django.urls import reverse
+
+    def page(user: Any) -> str:
+        client = Client()
+        client.force_login(user)
+        response = client.get(reverse("reports:revision", args=[draft.pk]))
+        assert response.status_code == 200
+        return response.content.decode()
+
+    check_url = reverse("reports:sign", args=[draft.pk, "check"])
+    approve_url = reverse("reports:sign", args=[draft.pk, "approve"])
+    assert check_url in page(cast.checker)
+    technician_page = page(cast.technician)
+    assert check_url not in technician_page
+    assert "Only a checker can check a report." in technician_page
+    services.revision_check(user=cast.checker, revision=draft, password=PASSWORD)
+    checker_page = page(cast.checker)
+    assert approve_url not in checker_page
+    assert "Only an approving engineer can approve a report." in checker_page
+    assert approve_url in page(cast.approver)

@@ -145,3 +145,19 @@ def test_weekly_chart_ticks_sit_on_the_mondays_that_start_each_week() -> None:
     assert ticks and all(t.isoweekday() == 1 for t in ticks)  # Monday = 1 (ISO 8601)
     assert set(ticks) <= {w.week_start for w in weeks}
     assert xaxis["ticktext"][0] == "14 Sep"
+
+
+@pytest.mark.parametrize("seed", range(20))
+def test_percentile_from_counts_matches_numpy_on_the_expanded_values(seed: int) -> None:
+    """Reading a percentile off a histogram gives numpy's "linear" percentile (the percentile_cont
+    definition) of the values it stands for."""
+    from testing.selectors_dashboard import percentile_from_counts
+
+    rng = np.random.default_rng(seed)
+    values = sorted({int(v) for v in rng.integers(0, 90, size=int(rng.integers(1, 12)))})
+    counts = [(float(v), int(rng.integers(1, 40))) for v in values]
+    expanded = [v for v, n in counts for _ in range(n)]
+    for fraction in (0.0, 0.1, 0.5, 0.9, 1.0):
+        assert percentile_from_counts(counts, fraction) == pytest.approx(
+            float(np.percentile(expanded, 100 * fraction))
+        )

@@ -133,9 +133,7 @@ def _number(value: object, unit: str, decimal_comma: bool) -> float:
                 raise _Bad("not a number") from None
             given = m.group(2)
             if given.casefold() != unit.casefold():
-                raise _Bad(
-                    f"wrong unit {given!r}: the layout gives this column in {unit}"
-                ) from None
+                raise _Bad(f"wrong unit {given!r}: this column is read in {unit}") from None
             x = float(m.group(1))
     if not math.isfinite(x):
         raise _Bad("not a finite number")

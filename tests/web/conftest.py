@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from collections.abc import Iterator
 from dataclasses import dataclass
 from datetime import date
 from decimal import Decimal
@@ -15,6 +16,7 @@ from testing.services.computation import test_recompute_request
 from testing.services.records import specimen_create
 from testing.services.shear_setup import shear_test_create, stage_create, stage_readings_store
 from tests.conftest import Cast, Records
+from tests.web.browser_support import launch_chromium
 
 NORMAL_STRESSES_KPA = (50.0, 100.0, 200.0)
 BOX_MM = 60.0
@@ -101,3 +103,9 @@ def shear_set_a(
     with django_capture_on_commit_callbacks(execute=True):
         test_recompute_request(test=shear_set.test, user=cast.technician, reason="fixture")
     return shear_set
+
+
+@pytest.fixture(scope="module")
+def browser() -> Iterator[Any]:
+    """Debian's Chromium, one per test module (browser tests only)."""
+    yield from launch_chromium()

@@ -5,7 +5,6 @@ adds rows and saves. The screenshot goes to ``var/screenshots/stage-entry-grid.p
 
 from __future__ import annotations
 
-import os
 from collections.abc import Iterator
 from typing import Any
 
@@ -13,13 +12,13 @@ import pytest
 
 from testing.models import ConsolidationReading, ShearReading, ShearStage
 from tests.conftest import PASSWORD, Cast, Records
-from tests.web.test_browser import SHOTS, Session, browser  # noqa: F401  (the shared Chromium fixture)
+from tests.web.browser_support import SHOTS
+from tests.web.test_browser import Session
 from tests.web.test_entry_grid import make_ring_stage
 
 expect = pytest.importorskip("playwright.sync_api").expect
 pytestmark = [pytest.mark.browser, pytest.mark.timeout(240)]
 
-os.environ.setdefault("DJANGO_ALLOW_ASYNC_UNSAFE", "true")
 
 PASTED = "1.0\t0.5\t0.004\t61\n1.5\t0.75\t0.006\t78.5\n2.0\t1.0\t0.008\t90\n2.5\t1.25\t0.009\t96\n3.0\t1.5\t0.010\t99\n"
 
@@ -30,7 +29,7 @@ def ring(transactional_db: None, cast: Cast, records_a: Records) -> ShearStage:
 
 
 @pytest.fixture
-def technician(browser: Any, live_server: Any, ring: ShearStage) -> Iterator[Session]:  # noqa: F811
+def technician(browser: Any, live_server: Any, ring: ShearStage) -> Iterator[Session]:
     s = Session(browser, live_server.url)
     s.sign_in("tech", PASSWORD)
     yield s

@@ -13,40 +13,13 @@ from pathlib import Path
 from typing import Any
 
 import pytest
-from django.conf import settings
 from django.core.management import call_command
 
 from testing.models import DirectShearTest
+from tests.web.browser_support import SHOTS
 
 pytestmark = [pytest.mark.browser, pytest.mark.timeout(240)]
-
-# Playwright's sync API runs an event loop in this thread; the ORM calls made here between page
-# actions are ordinary blocking calls, not made from a coroutine.
-os.environ.setdefault("DJANGO_ALLOW_ASYNC_UNSAFE", "true")
-
-SHOTS = Path(settings.BASE_DIR) / "var" / "screenshots"
-CHROMIUM_ARGS = [
-    "--headless",
-    "--no-sandbox",
-    "--disable-gpu",
-    "--disable-quic",
-    "--no-first-run",
-    "--disable-background-networking",
-    "--disable-component-update",
-    "--disable-sync",
-]
 PASSWORD = "browser-demo-pass"
-
-
-@pytest.fixture(scope="module")
-def browser() -> Iterator[Any]:
-    sync_api = pytest.importorskip("playwright.sync_api")
-    if not Path("/usr/bin/chromium").exists():
-        pytest.skip("Debian's chromium is not installed")
-    with sync_api.sync_playwright() as p:
-        chromium = p.chromium.launch(executable_path="/usr/bin/chromium", args=CHROMIUM_ARGS)
-        yield chromium
-        chromium.close()
 
 
 @pytest.fixture

@@ -10,7 +10,6 @@ current, intact revision. Screenshots (``signoff-*.png``) go to ``var/screenshot
 from __future__ import annotations
 
 import hashlib
-import os
 from pathlib import Path
 from typing import Any
 
@@ -20,19 +19,14 @@ from reports import tasks
 from reports.models import AuditEvent, Report, ReportRevision, RevisionState, SignOff
 from reports.verification import verify_pdf_bytes
 from testing.models import DirectShearTest, Project
-from tests.web.test_browser import (  # noqa: F401  (shared Chromium, demo and sign-in fixtures)
+from tests.web.test_browser import (  # noqa: F401  (shared demo and sign-in fixtures)
     Session,
-    browser,
     demo,
     session,
 )
 
 expect = pytest.importorskip("playwright.sync_api").expect
 pytestmark = [pytest.mark.browser, pytest.mark.timeout(300)]
-
-# Playwright's sync API runs an event loop in this thread; the ORM calls made here between page
-# actions are ordinary blocking calls, not made from a coroutine.
-os.environ.setdefault("DJANGO_ALLOW_ASYNC_UNSAFE", "true")
 
 PASSWORD = "browser-demo-pass"  # the demo password the shared ``demo`` fixture sets
 REFUSED = "Re-enter your password to sign. Nothing was signed."
@@ -178,7 +172,7 @@ def test_the_engineer_approves_and_issues_ds02_and_the_client_downloads_the_sign
 
     assert queue.release() == ["issued"]
     # The page checks again by itself while the PDF is prepared: wait for it, bounded.
-    expect(_state(eng)).to_have_text("Issued", timeout=30_000)
+    expect(_state(eng)).to_have_text("Issued", timeout=60_000)
     revision.refresh_from_db()
     assert revision.state == RevisionState.ISSUED and revision.pdf_sha256
     pdf_row = eng.page.get_by_role("row", name="PDF sha256")

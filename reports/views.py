@@ -23,6 +23,7 @@ from reports.rendering.html import render_report_html
 from reports.verification import MAX_UPLOAD_BYTES, verify_number_and_hash, verify_pdf_bytes
 from testing import access
 from testing.services.errors import ServiceError
+from testing.views.common import CAUTION
 
 
 def _staff(request: HttpRequest) -> User:
@@ -96,6 +97,7 @@ def revision_detail(request: HttpRequest, pk: int) -> HttpResponse:
             ),
             "charts_json": charts,
             "sign_refusal": _next_sign_refusal(request, revision),
+            "caution": CAUTION,
         },
     )
 

@@ -45,6 +45,9 @@ def test_revision_page_loads_plotly_with_the_nonce_and_embeds_each_figure(
     # A three-stage set: shear, dilation, consolidation and envelope charts, each with data.
     assert len(figures) >= 4
     assert all(figure["data"] for figure in figures)
+    from testing.views.common import CAUTION
+
+    assert html.escape(CAUTION) in text  # the results caution beside the charts
     nav = _nav(text)
     assert f'href="{reverse("reports:list")}" aria-current="page">Reports<' in nav
 

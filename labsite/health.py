@@ -6,20 +6,20 @@ heartbeat lately — pages work, background work waits in the outbox. ``down`` (
 
 from __future__ import annotations
 
+import redis
 from django.conf import settings
 from django.db import connection
 from django.http import HttpRequest, JsonResponse
 from django.views.decorators.http import require_GET
+from redis.backoff import NoBackoff
+from redis.retry import Retry
+
+from labsite.celery import HEARTBEAT_KEY_PREFIX
 
 
 def _broker_and_workers() -> tuple[str, str]:
     if not settings.REDIS_URL:
         return "in-process", "in-process"
-    import redis
-    from redis.backoff import NoBackoff
-    from redis.retry import Retry
-
-    from labsite.celery import HEARTBEAT_KEY_PREFIX
 
     # No client-side retries: a dead broker must make this answer fast, not slowly.
     client = redis.Redis.from_url(

@@ -2,7 +2,11 @@
 
 from __future__ import annotations
 
+import os
+import subprocess
+import sys
 import time
+from pathlib import Path
 from typing import Any
 
 import pytest
@@ -31,3 +35,26 @@ def test_unreachable_broker_is_degraded_and_answers_within_two_seconds(settings:
     assert response.status_code == 200
     assert response.json()["status"] == "degraded"
     assert response.json()["checks"]["broker"] == "down"
+
+
+def test_a_booted_wsgi_worker_has_its_views_loaded_before_the_first_request() -> None:
+    """gunicorn imports labsite.wsgi when a worker boots; the views must be imported then, so the
+    worker's first request (often a health probe) does not pay for loading the URLconf."""
+    root = Path(__file__).resolve().parents[2]
+    env = {k: v for k, v in os.environ.items() if k != "DJANGO_SETTINGS_MODULE"}
+    result = subprocess.run(
+        [
+            sys.executable,
+            "-c",
+            "import sys, labsite.wsgi; "
+            "print(' '.join(m for m in ('labsite.urls', 'labsite.health', 'testing.views') if m in sys.modules))",
+        ],
+        cwd=root,
+        env=env,
+        capture_output=True,
+        text=True,
+        timeout=120,
+        check=False,
+    )
+    assert result.returncode == 0, result.stderr
+    assert result.stdout.split() == ["labsite.urls", "labsite.health", "testing.views"]

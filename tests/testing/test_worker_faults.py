@@ -224,19 +224,21 @@ def test_broker_down_for_30_s_answers_fast_and_catches_up(rig: Rig) -> None:
     down_until = time.monotonic() + 30
     health_states: set[str] = set()
     submitted = rig.driver("submit")
-    slowest_submit, slowest_health = submitted["slowest_request_s"], 0.0
+    slowest_submit, health_times = submitted["slowest_request_s"], []
     while time.monotonic() < down_until:
         started = time.monotonic()
         health_states.add(_status_of(health))
-        slowest_health = max(slowest_health, time.monotonic() - started)
+        health_times.append(time.monotonic() - started)
         time.sleep(1.0)
     rig.redis = start_redis(rig.procs, rig.tmp, rig.redis_port, name="redis-again")
 
     assert slowest_submit < 2.0, (
         f"slowest submission {slowest_submit:.2f} s while the broker was down"
     )
-    assert slowest_health < 2.0, (
-        f"slowest /healthz {slowest_health:.2f} s while the broker was down"
+    assert max(health_times) < 2.0, (
+        "slowest /healthz {:.2f} s while the broker was down; all (s): {}".format(
+            max(health_times), " ".join(f"{t:.2f}" for t in health_times)
+        )
     )
     assert health_states == {"degraded"}
     status = rig.settled()

@@ -174,6 +174,15 @@ class ManualReadingsForm(forms.Form):
         super().__init__(data, **kwargs)
         self.stage = stage
         self.require_rows = require_rows
+        self.fields["traverse"] = forms.TypedChoiceField(
+            label="Shear traverse",
+            coerce=int,
+            choices=[(n, str(n)) for n in range(1, stage.traverses + 1)],
+            initial=1,
+            required=False,
+            empty_value=None,  # blank: traverse 1 (see traverse_number)
+            help_text="Saving replaces this traverse's readings; the stage's other traverses stay.",
+        )
         self.in_divisions = stage.force_unit == ForceUnit.DIVISIONS
         self.columns = {
             "consolidation": self._consolidation_columns(),
@@ -317,9 +326,15 @@ class ManualReadingsForm(forms.Form):
             for c in self.columns[phase]
         }
 
+    @property
+    def traverse_number(self) -> int:
+        """The shear traverse being entered (1 until the form is cleaned)."""
+        data = getattr(self, "cleaned_data", None) or {}
+        return int(data.get("traverse") or 1)
+
     def rows(self) -> list[dict[str, object]]:
-        """Non-empty grid rows as the service takes them: consolidation first, then shear
-        (first traverse); the settlement becomes upward-positive ``vertical_mm``."""
+        """Non-empty grid rows as the service takes them: consolidation first, then shear (the
+        chosen traverse); the settlement becomes upward-positive ``vertical_mm``."""
         rows: list[dict[str, object]] = []
         self._origin = []
         for number in range(1, self.row_counts["consolidation"] + 1):
@@ -336,7 +351,7 @@ class ManualReadingsForm(forms.Form):
         for number in range(1, self.row_counts["shear"] + 1):
             typed = self._typed("shear", number)
             if any(typed.values()):
-                rows.append({"phase": "shear", "traverse": 1, **typed})
+                rows.append({"phase": "shear", "traverse": self.traverse_number, **typed})
                 self._origin.append(("shear", number))
         return rows
 
@@ -347,7 +362,7 @@ class ManualReadingsForm(forms.Form):
         for number in range(1, self.row_counts["shear"] + 1):
             typed = self._typed("shear", number)
             if typed["force"]:
-                rows.append({"phase": "shear", "traverse": 1, **typed})
+                rows.append({"phase": "shear", "traverse": self.traverse_number, **typed})
                 self._reduce_origin.append(number)
         return rows
 

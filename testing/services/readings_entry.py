@@ -93,10 +93,12 @@ def _store_rows(
     source: str,
     reason: str,
     why: str,
+    shear_traverses_only: bool = False,
 ) -> tuple[ParsedReadings, int]:
     """Check ``rows`` (raising :class:`ReadingsRejected` with every bad row, nothing saved), then
-    replace the phases given in one transaction with the audit row and a reduction request.
-    Returns the readings and the number of rows replaced."""
+    replace the phases given (with ``shear_traverses_only``, only the shear traverses given) in
+    one transaction with the audit row and a reduction request. Returns the readings and the
+    number of rows replaced."""
     require_technician(user)
     require_open(stage)
     parsed = validate_row_objects(stage, rows, layout)
@@ -105,13 +107,15 @@ def _store_rows(
     with transaction.atomic():
         locked = ShearStage.objects.select_for_update().get(pk=stage.pk)
         before = readings_state(locked.pk)
-        replaced = replace_readings(locked, parsed)
+        replaced = replace_readings(locked, parsed, shear_traverses_only=shear_traverses_only)
+        # Traverses kept beside the new ones: the digest after is read back from the tables.
+        after = readings_state(locked.pk) if shear_traverses_only else parsed_state(before, parsed)
         readings_change_record(
             stage=locked,
             user=user,
             source=source,
             before=before,
-            after=parsed_state(before, parsed),
+            after=after,
             reason=reason,
         )
         request_stage_reduction(stage=locked, user=user, reason=why)
@@ -121,8 +125,27 @@ def _store_rows(
 def stage_readings_enter(
     *, user: User, stage: ShearStage, rows: Sequence[Mapping[str, object]], reason: str = ""
 ) -> tuple[int, int]:
-    """Save readings typed on the entry grid, replacing the phases entered; returns the counts
-    (consolidation, shear). Raises :class:`ReadingsRejected` listing every bad row (nothing saved)."""
+    """Save readings typed on the entry grid; returns the counts (consolidation, shear).
+
+    Consolidation rows replace the stage's consolidation readings; shear rows replace the readings
+    of the traverse they name (default 1) and leave the stage's other traverses as they are. A
+    traverse beyond the stage's number of traverses is refused. Raises :class:`ReadingsRejected`
+    listing every bad row (nothing saved)."""
+    beyond = [
+        RowError(
+            number,
+            "traverse",
+            str(row.get("traverse")),
+            f"this stage has {stage.traverses} traverse(s)",
+        )
+        for number, row in enumerate(rows, start=1)
+        if (row.get("phase") or "shear") == "shear"
+        and _int_or_none(row.get("traverse")) not in (None, *range(1, stage.traverses + 1))
+    ]
+    if beyond:
+        raise ReadingsRejected(
+            f"{len(beyond)} row(s) name a traverse this stage does not have.", beyond
+        )
     parsed, _ = _store_rows(
         user=user,
         stage=stage,
@@ -131,8 +154,21 @@ def stage_readings_enter(
         source=ReadingsSource.ENTERED,
         reason=reason,
         why="readings entered by hand",
+        shear_traverses_only=True,
     )
     return int(parsed.consolidation_elapsed_min.size), int(parsed.shear_elapsed_min.size)
+
+
+def _int_or_none(value: object) -> int | None:
+    """A typed traverse number; None when blank (the default applies) or not a whole number
+    (the row rules then report it)."""
+    if value in (None, ""):
+        return None
+    try:
+        number = float(str(value))
+    except ValueError:
+        return None
+    return int(number) if number.is_integer() else None
 
 
 @dataclass(frozen=True)

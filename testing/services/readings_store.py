@@ -19,8 +19,13 @@ from testing.models import ConsolidationReading, ShearReading, ShearStage
 BATCH_ROWS = 5000  # rows per bulk_create batch / COPY chunk
 
 
-def replace_readings(stage: ShearStage, parsed: ParsedReadings) -> int:
-    """Replace the stage's readings of each phase present in ``parsed``; returns rows replaced."""
+def replace_readings(
+    stage: ShearStage, parsed: ParsedReadings, *, shear_traverses_only: bool = False
+) -> int:
+    """Replace the stage's readings of each phase present in ``parsed``; returns rows replaced.
+
+    ``shear_traverses_only``: replace only the shear traverses present in ``parsed`` and keep the
+    stage's other traverses (the entry grid enters one traverse at a time)."""
     replaced = 0
     if parsed.consolidation_elapsed_min.size:
         replaced += ConsolidationReading.objects.filter(stage=stage).delete()[0]
@@ -36,7 +41,10 @@ def replace_readings(stage: ShearStage, parsed: ParsedReadings) -> int:
             batch_size=BATCH_ROWS,
         )
     if parsed.shear_elapsed_min.size:
-        replaced += ShearReading.objects.filter(stage=stage).delete()[0]
+        old = ShearReading.objects.filter(stage=stage)
+        if shear_traverses_only:
+            old = old.filter(traverse__in=sorted({int(t) for t in parsed.shear_traverse}))
+        replaced += old.delete()[0]
         write_shear_rows(stage.pk, parsed)
     return replaced
 

@@ -284,7 +284,7 @@ def _grid_page(
 @staff_page
 @require_POST
 def stage_enter(request: HttpRequest, stage_id: int) -> HttpResponse:
-    """Save readings typed on the entry grid (consolidation and shear, first traverse). "Add 10
+    """Save readings typed on the entry grid (consolidation, and the chosen shear traverse). "Add 10
     rows" and "Show reduced values" re-draw the grid as typed and save nothing."""
     stage = access.stage_get_for_user(user=request.user, stage_id=stage_id)
     keep_typing = bool(request.POST.get("more") or request.POST.get("check"))
@@ -310,7 +310,8 @@ def stage_enter(request: HttpRequest, stage_id: int) -> HttpResponse:
         return _grid_page(request, stage, form, status=400, manual_error=str(exc))
     messages.success(
         request,
-        f"Saved {consolidation} consolidation and {shear} shear readings for stage "
+        f"Saved {consolidation} consolidation and {shear} shear readings"
+        f"{f' (traverse {form.traverse_number})' if shear and stage.traverses > 1 else ''} for stage "
         f"{stage.stage_number}. The stage is being reduced.",
     )
     return redirect("test-detail", test_id=stage.test_id)

@@ -362,3 +362,70 @@ def test_the_reduce_endpoint_needs_the_csrf_token(cast: Cast, ring: ShearStage) 
     allowed = client.post(url, {**_shear(1, 0, 0, 0, 40), "csrfmiddlewaretoken": token})
     assert allowed.status_code == 200
     assert allowed.json()["rows"][0]["force_n"] == pytest.approx(40 * RING_CONSTANT_N_PER_DIV)
+
+
+# --- traverses -----------------------------------------------------------------------------------
+
+
+@pytest.mark.django_db
+def test_a_second_traverse_is_entered_without_touching_the_first(
+    cast: Cast, ring: ShearStage
+) -> None:
+    """A residual test by reversal shears the same specimen several times; each traverse is typed
+    on its own and saving one keeps the others. The audit row's digest after the change is the
+    digest of what the tables then hold."""
+    from testing.models import ReadingsChange
+    from testing.services.readings_audit import readings_state
+
+    ShearStage.objects.filter(pk=ring.pk).update(traverses=3)
+    technician = _signed_in(cast, "technician")
+    url = reverse("stage-enter", args=[ring.pk])
+    page = technician.get(reverse("stage-detail", args=[ring.pk]))
+    assert b"3 traverses, entered one at a time" in page.content
+    assert all(f'<option value="{n}"'.encode() in page.content for n in (1, 2, 3))
+    first = {"traverse": "1", **_shear(1, 0, 0, 0, 0), **_shear(2, 1.0, 0.5, 0.01, 40)}
+    second = {"traverse": "2", **_shear(1, 0, 0, 0, 0), **_shear(2, 1.0, 0.4, -0.01, 25)}
+    assert technician.post(url, first).status_code == 302
+    assert technician.post(url, second).status_code == 302
+    stored = list(
+        ShearReading.objects.filter(stage=ring)
+        .order_by("traverse", "seq")
+        .values_list("traverse", "horizontal_mm", "force_reading")
+    )
+    assert stored == [(1, 0.0, 0.0), (1, 0.5, 40.0), (2, 0.0, 0.0), (2, 0.4, 25.0)]
+    # Typing traverse 2 again replaces traverse 2 only.
+    again = {"traverse": "2", **_shear(1, 0, 0, 0, 0), **_shear(2, 2.0, 0.9, -0.02, 27)}
+    assert technician.post(url, again).status_code == 302
+    stored = list(
+        ShearReading.objects.filter(stage=ring)
+        .order_by("traverse", "seq")
+        .values_list("traverse", "horizontal_mm")
+    )
+    assert stored == [(1, 0.0), (1, 0.5), (2, 0.0), (2, 0.9)]
+    last = ReadingsChange.objects.filter(stage=ring).order_by("-id").first()
+    assert last is not None
+    assert (last.shear_rows_before, last.shear_rows_after) == (4, 4)
+    assert last.sha256_after == readings_state(ring.pk).sha256
+
+
+@pytest.mark.django_db
+def test_a_traverse_the_stage_does_not_have_is_refused(cast: Cast, ring: ShearStage) -> None:
+    from testing.services.imports import ReadingsRejected
+    from testing.services.readings_entry import stage_readings_enter
+
+    response = _signed_in(cast, "technician").post(
+        reverse("stage-enter", args=[ring.pk]), {"traverse": "2", **_shear(1, 0, 0, 0, 0)}
+    )
+    assert response.status_code == 400  # the stage has one traverse
+    assert ShearReading.objects.filter(stage=ring).count() == 0
+    # The service refuses it too, for any caller of the grid's save.
+    with pytest.raises(ReadingsRejected) as refused:
+        stage_readings_enter(
+            user=cast.technician,
+            stage=ring,
+            rows=[{"phase": "shear", "traverse": 2, "time_min": 0, "horizontal_mm": 0,
+                   "vertical_mm": 0, "force": 0}],
+        )  # fmt: skip
+    assert [(e.row, e.column) for e in refused.value.errors] == [(1, "traverse")]
+    assert "1 traverse" in refused.value.errors[0].reason
+    assert ShearReading.objects.filter(stage=ring).count() == 0

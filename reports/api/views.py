@@ -19,6 +19,7 @@ from typing import Any
 from django.contrib.auth.models import User
 from django.db.models import Prefetch, QuerySet
 from django.http import FileResponse, Http404
+from drf_spectacular.types import OpenApiTypes
 from drf_spectacular.utils import extend_schema, extend_schema_view
 from rest_framework import exceptions, mixins, serializers, status, viewsets
 from rest_framework.decorators import action
@@ -151,6 +152,7 @@ class ReportRevisionViewSet(
         assert isinstance(user, User)
         return user
 
+    @extend_schema(responses={(200, "application/pdf"): OpenApiTypes.BINARY})
     @action(detail=True, methods=["get"])
     def pdf(self, request: Request, pk: str | None = None) -> FileResponse:
         revision = self.get_object()

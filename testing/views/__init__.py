@@ -3,6 +3,7 @@
 from testing.views.assets import plotly_js
 from testing.views.dashboard import dashboard
 from testing.views.errors import page_not_found, permission_denied, server_error
+from testing.views.exports import project_ags, project_results, test_results
 from testing.views.records import (
     borehole_detail,
     project_detail,
@@ -33,8 +34,10 @@ __all__ = [
     "page_not_found",
     "permission_denied",
     "plotly_js",
+    "project_ags",
     "project_detail",
     "project_list",
+    "project_results",
     "sample_detail",
     "sample_move",
     "server_error",
@@ -49,6 +52,7 @@ __all__ = [
     "test_detail",
     "test_list",
     "test_recompute",
+    "test_results",
     "test_runs",
     "worklist",
 ]

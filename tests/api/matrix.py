@@ -90,6 +90,18 @@ def read_action() -> dict[str, Row]:
     return {"GET": DETAIL, "POST": NO_WRITE, "PUT": NO_WRITE, "PATCH": NO_WRITE, "DELETE": NO_WRITE}
 
 
+def staff_read_action() -> dict[str, Row]:
+    """A GET-only download for lab staff (AGS4 file, results tables): clients are refused (403)
+    before any record is looked up."""
+    return {
+        "GET": STAFF_DETAIL,
+        "POST": NO_WRITE,
+        "PUT": NO_WRITE,
+        "PATCH": NO_WRITE,
+        "DELETE": NO_WRITE,
+    }
+
+
 def post_action(post: Row, get: Row = NO_GET, other: Row = NO_WRITE) -> dict[str, Row]:
     return {"GET": get, "POST": post, "PUT": other, "PATCH": other, "DELETE": other}
 
@@ -197,6 +209,8 @@ MATRIX: dict[str, dict[str, Row]] = {
     },
     "api:project-list": _projects["list"],
     "api:project-detail": _projects["detail"],
+    "api:project-ags": staff_read_action(),
+    "api:project-results": staff_read_action(),
     "api:borehole-list": _boreholes["list"],
     "api:borehole-detail": _boreholes["detail"],
     "api:sample-list": _samples["list"],
@@ -208,6 +222,7 @@ MATRIX: dict[str, dict[str, Row]] = {
     "api:test-set-list": _test_sets["list"],
     "api:test-set-detail": _test_sets["detail"],
     "api:test-set-recompute": post_action(_RECOMPUTE),
+    "api:test-set-results": staff_read_action(),
     "api:stage-list": _stages["list"],
     "api:stage-detail": _stages["detail"],
     "api:stage-readings": read_action(),

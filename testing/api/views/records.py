@@ -5,6 +5,7 @@ from __future__ import annotations
 from typing import Any
 
 from django.db.models import Model, QuerySet
+from django.http import HttpResponse
 from drf_spectacular.utils import extend_schema, extend_schema_view
 from rest_framework.decorators import action
 from rest_framework.request import Request
@@ -14,7 +15,9 @@ from testing import selectors
 from testing.api import filters, scoping
 from testing.api.permissions import LabAccess, LabStaffOnly
 from testing.api.serializers import records as s
+from testing.api.views import downloads
 from testing.api.views.base import CreateViaServiceMixin, RecordViewSet
+from testing.exporters.downloads import project_ags_download, project_results_download
 from testing.models import Borehole, Organisation, Project, Sample, Specimen
 from testing.services import lifecycle, records
 
@@ -52,6 +55,28 @@ class ProjectViewSet(CreateViaServiceMixin, RecordViewSet):
 
     def perform_service(self, data: dict[str, Any]) -> Model:
         return records.project_create(user=self.acting_user, **data)
+
+    @downloads.ags_schema
+    @action(detail=True, methods=["get"], permission_classes=[LabAccess, LabStaffOnly])
+    def ags(self, request: Request, pk: str | None = None) -> HttpResponse:
+        project = self.get_object()
+        version = downloads.query(request, "version", "4.1.1")
+        return downloads.respond(
+            "version",
+            lambda: project_ags_download(user=self.acting_user, project=project, version=version),
+        )
+
+    @downloads.results_schema
+    @action(detail=True, methods=["get"], permission_classes=[LabAccess, LabStaffOnly])
+    def results(self, request: Request, pk: str | None = None) -> HttpResponse:
+        project = self.get_object()
+        file_format = downloads.query(request, "file", "csv")
+        return downloads.respond(
+            "file",
+            lambda: project_results_download(
+                user=self.acting_user, project=project, file_format=file_format
+            ),
+        )
 
 
 @extend_schema_view(create=extend_schema(request=s.BoreholeIn, responses={201: s.BoreholeOut}))

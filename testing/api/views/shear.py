@@ -6,6 +6,7 @@ from typing import Any
 
 from django.db import transaction
 from django.db.models import Model, QuerySet
+from django.http import HttpResponse
 from drf_spectacular.utils import extend_schema, extend_schema_view
 from rest_framework import status
 from rest_framework.decorators import action
@@ -16,10 +17,13 @@ from rest_framework.response import Response
 from testing import selectors
 from testing.api import filters, scoping
 from testing.api.errors import RowsRejected, Unavailable
+from testing.api.permissions import LabAccess, LabStaffOnly
 from testing.api.serializers import results as rs
 from testing.api.serializers import shear as s
 from testing.api.serializers import uploads as up
+from testing.api.views import downloads
 from testing.api.views.base import CreateViaServiceMixin, RecordViewSet
+from testing.exporters.downloads import set_results_download
 from testing.models import (
     ConsolidationReading,
     DirectShearTest,
@@ -59,6 +63,16 @@ class TestSetViewSet(CreateViaServiceMixin, RecordViewSet):
                 test=test, user=self.acting_user, reason=serializer.validated_data["reason"]
             )
         return Response(rs.RecomputeOut({"runs": runs}).data, status=status.HTTP_202_ACCEPTED)
+
+    @downloads.results_schema
+    @action(detail=True, methods=["get"], permission_classes=[LabAccess, LabStaffOnly])
+    def results(self, request: Request, pk: str | None = None) -> HttpResponse:
+        test = self.get_object()
+        file_format = downloads.query(request, "file", "csv")
+        return downloads.respond(
+            "file",
+            lambda: set_results_download(user=self.acting_user, test=test, file_format=file_format),
+        )
 
 
 @extend_schema_view(create=extend_schema(request=s.StageIn, responses={201: s.StageOut}))

@@ -16,6 +16,19 @@ class MethodProfile(models.TextChoices):
     AASHTO_T236 = "aashto-t236", "AASHTO T 236"
 
 
+def method_title(label: str, edition: str) -> str:
+    """A method and its edition written as the standard is cited: "BS 1377-7:1990",
+    "BS EN ISO 17892-10:2018", "ASTM D3080/D3080M-23" (the edition already repeats the designation),
+    "AASHTO T 236" (the edition adds nothing)."""
+    edition = edition.strip()
+    if not edition or edition in label:
+        return label
+    body, _, designation = label.partition(" ")
+    if designation and edition.startswith(designation):
+        return f"{body} {edition}"
+    return f"{label}:{edition}"
+
+
 DEFAULT_EDITIONS = {
     MethodProfile.ASTM_D3080: "D3080/D3080M-23",
     MethodProfile.BS_1377_7: "1990",
@@ -123,6 +136,11 @@ class DirectShearTest(models.Model):
 
     def __str__(self) -> str:
         return f"{self.project.reference}/{self.reference}"
+
+    @property
+    def method_title(self) -> str:
+        """The method as a standard is cited: see :func:`method_title`."""
+        return method_title(self.get_method_display(), self.method_edition)
 
 
 class NormalLoading(models.TextChoices):

@@ -780,7 +780,7 @@ def demo_parameters() -> dict[SoilKind, SoilParameters]:
             displacement_to_peak_mm=3.0,
             max_dilation_deg=9.0,
             contraction_mm=0.03,
-            rate_mm_per_min=0.5,
+            rate_mm_per_min=0.3,  # within the drained limit of every demo stage
             t50_min=0.2,
             settlement_per_100_kpa_mm=0.08,
         ),

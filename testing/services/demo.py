@@ -443,6 +443,7 @@ def _sand_set(
         due_on=(now - timedelta(days=34) + timedelta(days=21)).date(),
         instructions="Peak and ultimate strength, recompacted to 95 % of maximum dry density.",
     )
+    tested = now - timedelta(days=31)
     for number, sigma in enumerate(_NORMAL_STRESSES_KPA, start=1):
         stage = _lever_stage(
             user=user,
@@ -465,6 +466,9 @@ def _sand_set(
                 "force_unit": ForceUnit.DIVISIONS,
                 "force_factor_n_per_unit": _RING_CONSTANT_N_PER_DIV,
                 "rate_mm_per_min": params.rate_mm_per_min,
+                # One stage after another on one day: consolidated for an hour, then sheared.
+                "consolidation_started_at": tested + timedelta(hours=3 * (number - 1)),
+                "shear_started_at": tested + timedelta(hours=3 * (number - 1) + 1),
             },
         )
         _store_readings(
@@ -494,6 +498,7 @@ def _clay_set(*, project: Project, sample: Sample, user: User, now: datetime) ->
         due_on=(now - timedelta(days=30) + timedelta(days=21)).date(),
         instructions="Drained peak strength on undisturbed specimens.",
     )
+    tested = now - timedelta(days=27)
     for number, sigma in enumerate(_NORMAL_STRESSES_KPA, start=1):
         stage = _lever_stage(
             user=user,
@@ -515,6 +520,9 @@ def _clay_set(*, project: Project, sample: Sample, user: User, now: datetime) ->
                 "force_unit": ForceUnit.NEWTON,
                 "force_factor_n_per_unit": 1.0,
                 "rate_mm_per_min": params.rate_mm_per_min,
+                # A stage a day: consolidated overnight, sheared slowly the next day.
+                "consolidation_started_at": tested + timedelta(days=number - 1),
+                "shear_started_at": tested + timedelta(days=number),
             },
         )
         _store_readings(
@@ -595,7 +603,7 @@ def _logger_set(
     from testing.services.imports import import_layout_save, stage_readings_import
 
     params = demo_parameters()["clay"]
-    tested_on = now - timedelta(days=18)
+    tested_on = now - timedelta(days=14)  # after the sample arrived (16 days ago)
     machine = apparatus_create(
         user=manager,
         reference="SB-6",

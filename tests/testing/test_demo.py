@@ -81,6 +81,23 @@ def test_demo_covers_the_lab_workload() -> None:
 
 
 @pytest.mark.django_db
+def test_demo_stages_are_tested_in_a_possible_order() -> None:
+    """Each stage is consolidated after its sample arrived and the set was requested, and sheared
+    after it was consolidated: a report's "dates of testing" come from these times."""
+    call_command("loaddemo", stdout=StringIO())
+    stages = ShearStage.objects.select_related("test", "specimen__sample")
+    assert stages.count() >= 9
+    for stage in stages:
+        assert stage.consolidation_started_at is not None, stage
+        assert stage.shear_started_at is not None, stage
+        day = stage.consolidation_started_at.date()
+        assert day >= stage.specimen.sample.received_on, stage
+        assert day >= stage.test.requested_on, stage
+        assert stage.shear_started_at > stage.consolidation_started_at, stage
+        assert stage.shear_started_at <= timezone.now(), stage
+
+
+@pytest.mark.django_db
 def test_demo_clients_see_only_their_own_projects() -> None:
     call_command("loaddemo", stdout=StringIO())
     from django.contrib.auth import get_user_model

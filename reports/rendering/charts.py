@@ -24,7 +24,10 @@ rcParams["svg.fonttype"] = "none"
 rcParams["svg.hashsalt"] = "tauline"  # stable element ids: the same chart gives the same SVG
 rcParams["font.family"] = "DejaVu Sans"
 
-LegendLoc = Literal["lower right", "upper left", "center right", "upper right", "lower left"]
+# "outside right": beside the axes, for charts whose curves leave no corner free.
+LegendLoc = Literal[
+    "lower right", "upper left", "center right", "upper right", "lower left", "outside right"
+]
 PALETTE = ("#1f5f8b", "#c0392b", "#2e8540", "#8e44ad", "#d35400", "#34495e")
 
 
@@ -137,10 +140,14 @@ def to_svg(chart: Chart, *, width_in: float = 6.3, height_in: float = 3.2) -> st
         ax.invert_yaxis()
     if chart.series or chart.bands:
         # A fixed place: "best" searches every plotted point and dominated the drawing time.
-        ax.legend(fontsize=7, frameon=False, loc=chart.legend_loc)
+        if chart.legend_loc == "outside right":
+            ax.legend(fontsize=6.5, frameon=False, loc="upper left", bbox_to_anchor=(1.01, 1.0))
+        else:
+            ax.legend(fontsize=7, frameon=False, loc=chart.legend_loc)
     for i, note in enumerate(chart.notes):
         ax.annotate(note, xy=(0.01, 0.02 + 0.06 * i), xycoords="axes fraction", fontsize=7)
-    fig.subplots_adjust(left=0.1, right=0.98, top=0.9, bottom=0.15)  # fixed: tight_layout is slow
+    right = 0.66 if chart.legend_loc == "outside right" else 0.98
+    fig.subplots_adjust(left=0.1, right=right, top=0.9, bottom=0.15)  # fixed: tight_layout is slow
     out = io.StringIO()
     fig.savefig(out, format="svg", metadata={"Date": None, "Creator": None})
     svg = out.getvalue()
@@ -316,7 +323,7 @@ def consolidation_chart(test: dict[str, Any]) -> Chart:
         series=tuple(series),
         invert_y=True,
         x_max=x_max or None,
-        legend_loc="center right",
+        legend_loc="outside right",
     )
 
 

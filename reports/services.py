@@ -9,13 +9,14 @@ from __future__ import annotations
 
 import logging
 from collections.abc import Sequence
-from datetime import datetime
+from datetime import datetime, timedelta
 from typing import TYPE_CHECKING, Any
 
 from django.conf import settings
 from django.contrib.auth.models import User
 from django.core.files.base import ContentFile
 from django.db import IntegrityError, transaction
+from django.db.models import Q
 from django.utils import timezone
 
 from reports.audit import actor_name, audit_record
@@ -439,10 +440,51 @@ def revision_issue(*, user: User, revision: ReportRevision, password: str | None
             old=RevisionState.APPROVED,
             new=RevisionState.ISSUING,
         )
-        from reports import tasks  # tasks import services: import here to keep one direction
-
-        transaction.on_commit(lambda: tasks.render_revision.delay(current.pk))
+        transaction.on_commit(lambda: revision_render_publish(revision_id=current.pk))
     return current
+
+
+def revision_render_publish(*, revision_id: int) -> bool:
+    """Hand the rendering of a revision being issued to a report worker (in-process when no
+    broker is configured). Never waits on a dead broker and never raises for one: the revision
+    stays "being issued" and the relay publishes it again (:func:`revisions_render_republish`).
+    Returns whether it was handed over."""
+    from reports import tasks  # tasks import services: import here to keep one direction
+    from testing.services.computation import broker_reachable
+
+    if settings.CELERY_TASK_ALWAYS_EAGER:
+        tasks.render_revision.delay(revision_id)
+        return True
+    if not broker_reachable():
+        logger.warning("Broker unreachable; revision %s waits to be rendered", revision_id)
+        return False
+    try:
+        tasks.render_revision.apply_async(args=[revision_id], retry=False)
+    except Exception as exc:  # kombu/redis connection errors: the relay tries again
+        logger.warning("Revision %s not handed to a worker: %s", revision_id, exc)
+        return False
+    ReportRevision.objects.filter(pk=revision_id, state=RevisionState.ISSUING).update(
+        render_published_at=timezone.now()
+    )
+    return True
+
+
+def revisions_render_republish(*, now: datetime | None = None, **_: Any) -> dict[str, int]:
+    """Revisions still being issued that were never handed to a worker, or were handed over more
+    than ``TAULINE_RUN_REPUBLISH_SECONDS`` ago (the message or its worker was lost): hand them
+    over again. Rendering twice is harmless: only one delivery can issue a revision. Connected to
+    the relay's ``relay_pass`` signal."""
+    now = now or timezone.now()
+    stale = now - timedelta(seconds=settings.TAULINE_RUN_REPUBLISH_SECONDS)
+    waiting = ReportRevision.objects.filter(state=RevisionState.ISSUING).filter(
+        Q(render_published_at__isnull=True) | Q(render_published_at__lt=stale)
+    )
+    handed = 0
+    for revision_id in waiting.order_by("id").values_list("id", flat=True)[:50]:
+        if not revision_render_publish(revision_id=revision_id):
+            break  # the broker is down: the next pass tries again
+        handed += 1
+    return {"report_renders_republished": handed}
 
 
 def _certificate_record(info: CertificateInfo, *, at: datetime) -> SigningCertificate:

@@ -126,6 +126,9 @@ class ReportRevision(models.Model):
         settings.AUTH_USER_MODEL, on_delete=models.PROTECT, null=True, blank=True, related_name="+"
     )
     issue_requested_at = models.DateTimeField(null=True, blank=True)
+    render_published_at = models.DateTimeField(
+        null=True, blank=True, help_text="When the rendering was last handed to a report worker."
+    )
     issued_at = models.DateTimeField(null=True, blank=True)
     superseded_at = models.DateTimeField(null=True, blank=True)
     withdrawn_at = models.DateTimeField(null=True, blank=True)

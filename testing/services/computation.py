@@ -302,9 +302,17 @@ def runs_sweep(*, now: Any = None) -> dict[str, int]:
 
 
 def relay_once() -> dict[str, int]:
-    """One pass of the relay: sweep, then publish the outbox."""
+    """One pass of the relay: sweep, publish the outbox, then let other apps (reports) hand their
+    stalled work to the broker again (``testing.signals.relay_pass``)."""
+    from testing.signals import relay_pass
+
     counts = runs_sweep()
     counts["published"] = outbox_publish()
+    for receiver, answer in relay_pass.send_robust(sender=None):
+        if isinstance(answer, Exception):
+            logger.error("relay receiver %r failed: %s", receiver, answer, exc_info=answer)
+        elif answer:
+            counts.update(answer)
     return counts
 
 

@@ -8,6 +8,9 @@ Commands:
   submit        queue a reduction of every stage; prints the slowest request time [s]
   submit-one ID queue a reduction of stage ID
   status        run counts per state, result rows, and duplicate checks
+  issue-waiting approve and issue the demo's report revision that awaits approval, as the
+                approving engineer; prints its id, state and how long the issue request took [s]
+  revision ID   the state of report revision ID
 """
 
 from __future__ import annotations
@@ -97,6 +100,26 @@ def main(argv: list[str]) -> dict[str, object]:
                 runs.filter(state="failed").values("id", "stage_id", "attempts", "error")
             ),
         }
+    if command == "issue-waiting":
+        from django.conf import settings
+
+        from reports import services as report_services
+        from reports.models import ReportRevision
+
+        engineer = User.objects.get(username="engineer")
+        revision = ReportRevision.objects.get(state="checked")
+        password = settings.TAULINE_DEMO_PASSWORD
+        report_services.revision_approve(user=engineer, revision=revision, password=password)
+        started = time.monotonic()
+        report_services.revision_issue(user=engineer, revision=revision, password=password)
+        took = time.monotonic() - started
+        revision.refresh_from_db()
+        return {"revision": revision.pk, "state": revision.state, "issue_request_s": took}
+    if command == "revision":
+        from reports.models import ReportRevision
+
+        revision = ReportRevision.objects.get(pk=int(argv[1]))
+        return {"state": revision.state, "pdf_sha256": revision.pdf_sha256}
     raise SystemExit(f"unknown command {command!r}")
 
 

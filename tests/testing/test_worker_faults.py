@@ -224,6 +224,8 @@ def test_broker_down_for_30_s_answers_fast_and_catches_up(rig: Rig) -> None:
     down_until = time.monotonic() + 30
     health_states: set[str] = set()
     submitted = rig.driver("submit")
+    # A report issued meanwhile waits, "being issued", for a report worker; nothing is lost.
+    issued = rig.driver("issue-waiting")
     slowest_submit, health_times = submitted["slowest_request_s"], []
     while time.monotonic() < down_until:
         started = time.monotonic()
@@ -241,12 +243,20 @@ def test_broker_down_for_30_s_answers_fast_and_catches_up(rig: Rig) -> None:
         )
     )
     assert health_states == {"degraded"}
+    assert issued["issue_request_s"] < 2.0, issued
+    assert issued["state"] == "issuing", issued
     status = rig.settled()
     earlier_failures = {f["id"] for f in before["failed"]}  # e.g. the crash test's run
     assert [f for f in status["failed"] if f["id"] not in earlier_failures] == []
     assert status["duplicate_stage_results"] == 0
     assert status["stage_results"] == before["stage_results"] + status["stages"]
     wait_for("healthz ok again", lambda: _status_of(health) == "ok", 30, rig.procs.logs)
+    wait_for(
+        "the waiting report issued",
+        lambda: rig.driver("revision", str(issued["revision"]))["state"] == "issued",
+        120,
+        rig.procs.logs,
+    )
 
 
 class _StatusNote:

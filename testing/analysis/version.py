@@ -7,6 +7,6 @@ meaning, the patch part for fixes that cannot change any stored number.
 
 from __future__ import annotations
 
-ANALYSIS_VERSION = "1.0.0"
+ANALYSIS_VERSION = "1.1.0"  # 1.1: envelopes flag close normal stresses and uneven dry densities
 
 __all__ = ["ANALYSIS_VERSION"]

@@ -492,21 +492,29 @@ def _execute_envelope(run: ComputationRun, token: str) -> None:
         envelope_fit_compute,
         envelope_inputs_load,
         envelope_result_store,
+        envelope_set_flags,
     )
 
     test = run.test
     assert test is not None
-    inputs = envelope_inputs_load(test, run.envelope_type, latest_stage_results(test=test))
+    latest = latest_stage_results(test=test)
+    inputs = envelope_inputs_load(test, run.envelope_type, latest)
     inputs_hash = inputs.digest()
     reused = _reusable(run, inputs_hash)
     fit = None if reused else envelope_fit_compute(inputs)
+    set_flags = [] if reused else envelope_set_flags(test, inputs, latest)
     _progress(run, token, 80)
     with transaction.atomic():
         if not _lock_claim(run, token):
             return
         if fit is not None:
             envelope_result_store(
-                run=run, test=test, inputs=inputs, inputs_hash=inputs_hash, fit=fit
+                run=run,
+                test=test,
+                inputs=inputs,
+                inputs_hash=inputs_hash,
+                fit=fit,
+                set_flags=set_flags,
             )
         _succeed(run, token, inputs_hash, reused)
 

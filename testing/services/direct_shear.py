@@ -10,7 +10,7 @@ from __future__ import annotations
 import hashlib
 import json
 import math
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -183,6 +183,33 @@ def envelope_fit_compute(inputs: EnvelopeInputs) -> analysis.EnvelopeFit:
     )
 
 
+def envelope_set_flags(
+    test: DirectShearTest, inputs: EnvelopeInputs, results: Mapping[int, StageResult]
+) -> list[analysis.Flag]:
+    """Checks on the set of stages an envelope uses: normal stresses clearly apart, and the
+    initial dry densities of prepared (not undisturbed) specimens within the method's spread limit
+    (read from each point's stage result). An undisturbed sample's density varies as the ground
+    does, so it is not flagged."""
+    from testing.services.stage_context import PROFILE_FOR_METHOD
+
+    used = [p for p in inputs.usable if p["included"]]
+    by_id = {r.pk: r for r in results.values()}
+    found: list[analysis.Flag | None] = [
+        analysis.check_normal_stresses_distinct([p["normal_stress_kpa"] for p in used])
+    ]
+    preparation = dict(test.stages.values_list("stage_number", "specimen__preparation"))
+    densities = [
+        (by_id[p["stage_result_id"]].phase or {}).get("initial", {}).get("dry_density_mg_m3")
+        for p in used
+        if p["stage_result_id"] in by_id and preparation.get(p["stage_number"]) != "undisturbed"
+    ]
+    densities = [d for d in densities if d is not None]
+    limit = PROFILE_FOR_METHOD[test.method].dry_density_spread_pct
+    if limit is not None and len(densities) >= 2:
+        found.append(analysis.check_dry_density_spread(densities, limit_pct=limit))
+    return [f for f in found if f is not None]
+
+
 def _fit_summary(fit: analysis.EnvelopeFit) -> dict[str, Any]:
     return {
         "cohesion_kpa": fit.cohesion_kpa,
@@ -202,8 +229,10 @@ def envelope_result_store(
     inputs: EnvelopeInputs,
     inputs_hash: str,
     fit: analysis.EnvelopeFit,
+    set_flags: Sequence[analysis.Flag] = (),
 ) -> EnvelopeResult:
-    """Write the result row of one successful envelope fit."""
+    """Write the result row of one successful envelope fit, with the set's flags beside the
+    fit's own warnings."""
     low_c, high_c = fit.cohesion_ci95_kpa
     low_phi, high_phi = fit.friction_angle_ci95_deg
     points = [{**p, "residual_kpa": None} for p in inputs.points]
@@ -242,7 +271,7 @@ def envelope_result_store(
             if fit.through_origin_alternative is not None
             else None
         ),
-        warnings=[_flag_dict(w) for w in fit.warnings],
+        warnings=[_flag_dict(w) for w in (*fit.warnings, *set_flags)],
     )
 
 

@@ -23,6 +23,16 @@ def _peak_codes(test: Any) -> set[str]:
     return {w["code"] for w in envelope.warnings}
 
 
+def _denser(test: Any, *, stage_number: int, factor: float) -> None:
+    """The stage's specimen compacted denser: same volume, every mass times ``factor``."""
+    specimen = Specimen.objects.get(stage__test=test, stage__stage_number=stage_number)
+    Specimen.objects.filter(pk=specimen.pk).update(
+        dry_mass_g=round(specimen.dry_mass_g * factor, 2),
+        initial_mass_g=round(specimen.initial_mass_g * factor, 2),
+        final_mass_g=round(specimen.final_mass_g * factor, 2),
+    )
+
+
 def test_an_even_set_at_distinct_stresses_has_neither_flag(
     cast: Cast, records_a: Records, django_capture_on_commit_callbacks: Callable[..., Any]
 ) -> None:
@@ -40,12 +50,7 @@ def test_close_stresses_and_uneven_compaction_are_flagged_on_the_envelope(
     # Stage 2 loaded to 52 kPa beside stage 1's 50 kPa (a gap of 1 % of the highest stress), and
     # stage 3's specimen 6 % denser than the others (ρd = dry mass / volume).
     ShearStage.objects.filter(test=test, stage_number=2).update(weights_mass_kg=_weights_kg(52.0))
-    third = Specimen.objects.get(stage__test=test, stage__stage_number=3)
-    Specimen.objects.filter(pk=third.pk).update(
-        dry_mass_g=round(third.dry_mass_g * 1.06, 2),
-        initial_mass_g=round(third.initial_mass_g * 1.06, 2),
-        final_mass_g=round(third.final_mass_g * 1.06, 2),
-    )
+    _denser(test, stage_number=3, factor=1.06)
     compute(test, cast.technician, django_capture_on_commit_callbacks)
     codes = _peak_codes(test)
     assert {"DRY_DENSITY_SPREAD", "NORMAL_STRESSES_NOT_DISTINCT"} <= codes
@@ -58,11 +63,6 @@ def test_undisturbed_specimens_are_not_held_to_the_compaction_limit(
     Specimen.objects.filter(stage__test=test).update(
         preparation="undisturbed", target_dry_density_mg_m3=None
     )
-    third = Specimen.objects.get(stage__test=test, stage__stage_number=3)
-    Specimen.objects.filter(pk=third.pk).update(
-        dry_mass_g=round(third.dry_mass_g * 1.06, 2),
-        initial_mass_g=round(third.initial_mass_g * 1.06, 2),
-        final_mass_g=round(third.final_mass_g * 1.06, 2),
-    )
+    _denser(test, stage_number=3, factor=1.06)
     compute(test, cast.technician, django_capture_on_commit_callbacks)
     assert "DRY_DENSITY_SPREAD" not in _peak_codes(test)

@@ -22,6 +22,7 @@ from reports.rendering.charts import report_charts, to_plotly
 from reports.rendering.html import render_report_html
 from reports.verification import MAX_UPLOAD_BYTES, verify_number_and_hash, verify_pdf_bytes
 from testing import access
+from testing.exporters.tables import neutralise
 from testing.services.errors import ServiceError
 from testing.views.common import CAUTION
 
@@ -243,9 +244,7 @@ def revision_audit(request: HttpRequest, pk: int) -> HttpResponse:
                 e.reason,
             ]
             # Spreadsheets evaluate cells starting with = + - @ (and tab/CR): neutralise them.
-            writer.writerow(
-                ["'" + c if c[:1] in ("=", "+", "-", "@", "\t", "\r") else c for c in row]
-            )
+            writer.writerow([neutralise(c) for c in row])
         return response
     return render(request, "reports/audit.html", {"revision": revision, "events": events})
 

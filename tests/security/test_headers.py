@@ -70,6 +70,7 @@ def _values(revision: ReportRevision) -> dict[str, Any]:
         "content_type_id": 1,
         "url": "x",
         "format": "json",
+        "file_format": "csv",
         "id": 1,
         "uidb64": "x",
         "token": "x",

@@ -68,6 +68,8 @@ MIDDLEWARE = [
     "csp.middleware.CSPMiddleware",
     # Serves collected static files from gunicorn itself, so a deployment needs no extra web server.
     "whitenoise.middleware.WhiteNoiseMiddleware",
+    # Refuses (413) a body over the upload cap before CSRF or a view reads it.
+    "labsite.security.uploads.UploadLimitMiddleware",
     "django.contrib.sessions.middleware.SessionMiddleware",
     "django.middleware.common.CommonMiddleware",
     "django.middleware.csrf.CsrfViewMiddleware",
@@ -356,6 +358,13 @@ TAULINE_SIGNING_CERT_FILE = env_str("TAULINE_SIGNING_CERT_FILE")
 TAULINE_DEFAULT_TURNAROUND_DAYS = env_int("TAULINE_DEFAULT_TURNAROUND_DAYS", 15, minimum=1)
 # Largest logger or AGS4 upload accepted, checked before the file is parsed [bytes].
 TAULINE_MAX_UPLOAD_BYTES = env_int("TAULINE_MAX_UPLOAD_BYTES", 100_000_000, minimum=1024)
+# The cap holds while the body arrives: our handler counts the bytes first, then Django's own
+# handlers keep small files in memory and spill large ones to a temporary file.
+FILE_UPLOAD_HANDLERS = [
+    "labsite.security.uploads.CappedUploadHandler",
+    "django.core.files.uploadhandler.MemoryFileUploadHandler",
+    "django.core.files.uploadhandler.TemporaryFileUploadHandler",
+]
 
 LOGGING = {
     "version": 1,

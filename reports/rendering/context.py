@@ -62,13 +62,19 @@ def _thin(*arrays: np.ndarray) -> list[list[float | None]]:
     return [[_num(v) for v in np.asarray(a, dtype=float)[index]] for a in arrays]
 
 
-def _phase(specimen: Any) -> dict[str, Any]:
-    """Initial state from the specimen record; final water content when the masses are known."""
+FINAL_STATE_KEYS = ("bulk_density_mg_m3", "dry_density_mg_m3", "void_ratio", "saturation_pct")
+
+
+def _phase(specimen: Any, stored: dict[str, Any] | None) -> dict[str, Any]:
+    """Initial state from the specimen record; final water content when the masses are known;
+    the final state as the stage result stored it (``stored`` is ``StageResult.phase``)."""
+    final = (stored or {}).get("final") or {}
     out: dict[str, Any] = {
         "particle_density_mg_m3": _num(specimen.particle_density_mg_m3),
         "particle_density_measured": not specimen.particle_density_assumed,
         "initial": None,
         "final_water_content_pct": None,
+        "final": {key: _num(final.get(key)) for key in FINAL_STATE_KEYS},
     }
     if specimen.dry_mass_g and specimen.particle_density_mg_m3:
         volume_cm3 = specimen.plan_area_mm2 * specimen.height_mm / 1000.0
@@ -155,7 +161,7 @@ def _stage_content(stage: ShearStage, result: StageResult) -> dict[str, Any]:
             "received_on": sample.received_on.isoformat(),
             "condition_on_receipt": sample.condition_on_receipt,
         },
-        "phase": _phase(specimen),
+        "phase": _phase(specimen, result.phase),
         "shear_started_at": stage.shear_started_at.isoformat() if stage.shear_started_at else None,
         "normal_stress_kpa": _num(result.initial_normal_stress_kpa),
         "rate_set_mm_per_min": _num(stage.rate_mm_per_min),

@@ -221,7 +221,8 @@ class ReportRevision(models.Model):
         return self.label
 
     def save(self, *args: Any, **kwargs: Any) -> None:
-        """Refuse any change to an issued revision's content, files or sign-offs.
+        """Refuse any change to an issued revision's content, files or sign-offs, also once it
+        has been withdrawn after issue (then it also stays withdrawn).
 
         The database has the same guard (a trigger); this one gives a readable message first.
         """
@@ -232,7 +233,16 @@ class ReportRevision(models.Model):
                 .values("state", *[_column(f) for f in IMMUTABLE_AFTER_ISSUE])
                 .first()
             )
-            if stored is not None and stored["state"] in FROZEN_STATES:
+            withdrawn_after_issue = (
+                stored is not None
+                and stored["state"] == RevisionState.WITHDRAWN
+                and stored["issued_at"] is not None
+            )
+            if withdrawn_after_issue and self.state != RevisionState.WITHDRAWN:
+                raise ValueError(
+                    f"Revision {self.pk} was withdrawn after issue; it stays withdrawn."
+                )
+            if stored is not None and (stored["state"] in FROZEN_STATES or withdrawn_after_issue):
                 for name in IMMUTABLE_AFTER_ISSUE:
                     key = _column(name)
                     current = getattr(self, key)

@@ -363,12 +363,83 @@ def content_items(content: dict[str, Any]) -> dict[str, str]:
             items[f"{key}: initial dry density"] = _fmt(
                 initial.get("dry_density_mg_m3"), "Mg/m³", 3
             )
+            _other_items(items, key, stage, _STAGE_NAMED)
         for env in test["envelopes"]:
             key = f"{test['reference']} {env['label'].lower()} envelope"
             items[f"{key}: c′"] = _fmt(env["cohesion_kpa"], "kPa")
             items[f"{key}: φ′"] = _fmt(env["friction_angle_deg"], "°")
             items[f"{key}: n"] = _fmt(env["n"])
+            _other_items(items, key, env, _ENVELOPE_NAMED)
+        rest = {k: v for k, v in test.items() if k not in ("stages", "envelopes")}
+        _other_items(items, test["reference"], rest, _NOT_COMPARED)
+    top = {k: v for k, v in content.items() if k not in ("tests", "remarks", "deviations")}
+    _other_items(items, "Report", top, _NOT_COMPARED | {"report/title"})
     return items
+
+
+# Every other value is compared too, named by its place in the content. Left out: record ids and
+# digests that differ between any two revisions without anything printed changing, and the list
+# of changes itself.
+_NOT_COMPARED = frozenset(
+    {
+        "schema",
+        "revision",
+        "changes",
+        "test_id",
+        "stage_id",
+        "stage_result_id",
+        "envelope_result_id",
+        "inputs_sha256",
+    }
+)
+_STAGE_NAMED = _NOT_COMPARED | {
+    "normal_stress_kpa",
+    "failure/shear_stress_kpa",
+    "failure/horizontal_mm",
+    "failure/vertical_mm",
+    "failure/criterion",
+    "phase/initial/water_content_pct",
+    "phase/initial/dry_density_mg_m3",
+}
+_ENVELOPE_NAMED = _NOT_COMPARED | {"cohesion_kpa", "friction_angle_deg", "n", "label"}
+
+
+def _plain(value: Any) -> str:
+    """A value as a reader compares it: numbers to 4 significant figures (so a recomputation
+    that moves the 10th digit is not an amendment), a list of numbers as its size and digest."""
+    if value is None:
+        return "—"
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, float):
+        return f"{value:.4g}"
+    if isinstance(value, list) and all(isinstance(v, int | float) or v is None for v in value):
+        if len(value) <= 4:
+            return ", ".join(_plain(v) for v in value)
+        digest = hashlib.sha256(json.dumps(value).encode()).hexdigest()[:12]
+        return f"{len(value)} values (sha256 {digest}…)"
+    return str(value)
+
+
+def _other_items(
+    items: dict[str, str], key: str, node: dict[str, Any], skip: frozenset[str]
+) -> None:
+    """Add every leaf of ``node`` not in ``skip`` (paths like "failure/criterion") to ``items``."""
+
+    def walk(value: Any, path: str, label: str) -> None:
+        if path in skip or path.split("/")[0] in skip:
+            return
+        if isinstance(value, dict):
+            for k, v in value.items():
+                walk(v, f"{path}/{k}" if path else k, f"{label} {k.replace('_', ' ')}".strip())
+            return
+        if isinstance(value, list) and any(isinstance(v, dict) for v in value):
+            for i, v in enumerate(value, start=1):
+                walk(v, f"{path}/{i}", f"{label} {i}")
+            return
+        items[f"{key}: {label}"] = _plain(value)
+
+    walk(node, "", "")
 
 
 def content_changes(old: dict[str, Any], new: dict[str, Any]) -> list[tuple[str, str, str]]:

@@ -335,8 +335,11 @@ CONTENT_SECURITY_POLICY = {
 if not DEBUG:
     SESSION_COOKIE_SECURE = env_bool("DJANGO_SECURE_COOKIES", True)
     CSRF_COOKIE_SECURE = SESSION_COOKIE_SECURE
-    SECURE_SSL_REDIRECT = env_bool("DJANGO_SECURE_SSL_REDIRECT", False)
-    SECURE_HSTS_SECONDS = env_int("DJANGO_HSTS_SECONDS", 0, minimum=0)
+    # HTTPS by default: plain HTTP is redirected and browsers are told (HSTS, one year) to use
+    # HTTPS only. Behind a TLS proxy that sets X-Forwarded-Proto this needs nothing more; a
+    # plain-HTTP install (a local try-out, tests on 127.0.0.1) sets DJANGO_SECURE_SSL_REDIRECT=0.
+    SECURE_SSL_REDIRECT = env_bool("DJANGO_SECURE_SSL_REDIRECT", True)
+    SECURE_HSTS_SECONDS = env_int("DJANGO_HSTS_SECONDS", 365 * 24 * 3600, minimum=0)
     SECURE_HSTS_INCLUDE_SUBDOMAINS = env_bool("DJANGO_HSTS_INCLUDE_SUBDOMAINS", True)
     SECURE_HSTS_PRELOAD = env_bool("DJANGO_HSTS_PRELOAD", False)
     if not SECURE_HSTS_PRELOAD:

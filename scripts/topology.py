@@ -211,7 +211,8 @@ class Topology:
             "DJANGO_SECRET_KEY": os.environ.get("DJANGO_SECRET_KEY")
             or "topology-only-secret-key-" + uuid.uuid4().hex + uuid.uuid4().hex,
             "DJANGO_ALLOWED_HOSTS": "127.0.0.1,localhost",
-            "DJANGO_SECURE_COOKIES": "0",  # plain http on loopback
+            "DJANGO_SECURE_COOKIES": "0",  # plain http on loopback: no secure-only cookies,
+            "DJANGO_SECURE_SSL_REDIRECT": "0",  # and no redirect to https
             "MEDIA_ROOT": str(self.dir / "media"),
             "DJANGO_STATIC_ROOT": str(STATIC_DIR),
             "PYTHONUNBUFFERED": "1",

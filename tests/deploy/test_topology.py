@@ -52,6 +52,7 @@ def test_gunicorn_and_celery_worker_on_redis(tmp_path: Path) -> None:
             "DJANGO_DEBUG": "0",
             "DJANGO_SECRET_KEY": "topology-test-only-secret-key-0123456789abcdefghijklmnop",
             "DJANGO_ALLOWED_HOSTS": "127.0.0.1,localhost",
+            "DJANGO_SECURE_SSL_REDIRECT": "0",  # plain http on loopback: no redirect to https
             "MEDIA_ROOT": str(tmp_path / "media"),
             "DJANGO_STATIC_ROOT": str(tmp_path / "static"),
             "PYTHONUNBUFFERED": "1",

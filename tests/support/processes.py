@@ -193,7 +193,8 @@ def app_env(database_url: str, redis_url: str, tmp_path: Path, **extra: str) -> 
         "DJANGO_DEBUG": "0",
         "DJANGO_SECRET_KEY": "worker-test-only-secret-key-0123456789abcdefghijklmnop",
         "DJANGO_ALLOWED_HOSTS": "127.0.0.1,localhost",
-        "DJANGO_SECURE_COOKIES": "0",
+        "DJANGO_SECURE_COOKIES": "0",  # plain http on loopback: no secure-only cookies,
+        "DJANGO_SECURE_SSL_REDIRECT": "0",  # and no redirect to https
         "MEDIA_ROOT": str(tmp_path / "media"),
         "DJANGO_STATIC_ROOT": str(tmp_path / "static"),
         "PYTHONUNBUFFERED": "1",

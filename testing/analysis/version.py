@@ -7,6 +7,8 @@ meaning, the patch part for fixes that cannot change any stored number.
 
 from __future__ import annotations
 
-ANALYSIS_VERSION = "1.1.0"  # 1.1: envelopes flag close normal stresses and uneven dry densities
+# 1.1: envelopes flag close normal stresses and uneven dry densities
+# 1.2: stage results store U (k = 2) of τ at failure; envelopes store a characteristic line
+ANALYSIS_VERSION = "1.2.0"
 
 __all__ = ["ANALYSIS_VERSION"]

@@ -76,6 +76,46 @@ def stage_reduction_compute(
     )
 
 
+def failure_shear_stress_u_kpa(
+    reduction: analysis.StageReduction, inputs: StageInputs, box: analysis.BoxGeometry
+) -> float | None:
+    """Expanded uncertainty U (k = 2) of τ at failure [kPa], or None when the force calibration
+    gives no uncertainty (no calibration record, or a certificate without U) or the failure force
+    is not positive.
+
+    Inputs used (``analysis.shear_stress_uncertainty``):
+    - u(F): the certificate's expanded uncertainty U [N] over its own coverage factor k
+      (``inputs.settings["force_uncertainty"]``, so it is part of the inputs fingerprint);
+    - F: the shear force at failure, τf·Af (area at the failure reading under the stage's area
+      model);
+    - L, W and the box shape: the test's nominal box dimensions;
+    - u(L) = u(W) = 0: the lab records no tolerance for the box dimensions, so that term is left
+      out of the budget rather than guessed (it is usually far smaller than the force term).
+    The core computes τ = F/A on the nominal area; its relative uncertainty is applied to the
+    stored τf, which on the corrected area is F/Af (∂τ/∂F = 1/Af).
+    """
+    certificate = inputs.settings.get("force_uncertainty")
+    if certificate is None:
+        return None
+    failure = reduction.peak
+    force_n = failure.shear_stress_kpa * float(reduction.area_mm2[failure.index]) / 1000.0
+    if not force_n > 0.0:
+        return None
+    u = analysis.shear_stress_uncertainty(
+        force_n=force_n,
+        u_force_n=analysis.standard_from_expanded(
+            certificate["expanded_n"], certificate["coverage_factor_k"]
+        ),
+        length_mm=box.length_mm,
+        u_length_mm=0.0,
+        width_mm=box.width_mm,
+        u_width_mm=0.0,
+        shape=box.shape,
+        coverage_factor=2.0,  # the field promises k = 2, whatever k the certificate quotes
+    )
+    return _finite_or_none(u.expanded_uncertainty_kpa / u.value_kpa * failure.shear_stress_kpa)
+
+
 def stage_result_store(
     *,
     run: ComputationRun,
@@ -119,6 +159,12 @@ def stage_result_store(
         measured_rate_mm_per_min=_finite_or_none(reduction.measured_rate_mm_per_min),
         max_rate_mm_per_min=_finite_or_none(reduction.max_rate_mm_per_min),
         phase=context.details,
+        shear_stress_u_kpa=failure_shear_stress_u_kpa(reduction, inputs, box),
+        # σn: ``analysis.normal_stress_uncertainty`` needs the standard uncertainties of the
+        # direct, hanger and slotted masses, of the lever ratio and of the box dimensions (or of
+        # a load frame's stress). None of these is recorded anywhere (stage, apparatus or
+        # equipment register), so U(σn) stays unknown instead of an invented zero.
+        normal_stress_u_kpa=None,
         flags=[_flag_dict(f) for f in (*context.flags, *reduction.flags)],
     )
 
@@ -222,6 +268,49 @@ def _fit_summary(fit: analysis.EnvelopeFit) -> dict[str, Any]:
     }
 
 
+CHARACTERISTIC_CONFIDENCE = 0.95
+
+
+def envelope_characteristic(fit: analysis.EnvelopeFit) -> dict[str, Any] | None:
+    """A characteristic line under the fit, as an interpretation (not a test result), or None
+    when the fit cannot give one (through the origin, or fewer than 3 stages).
+
+    ``analysis.regression_lower_band`` (the core's function for one pooled regression) gives the
+    lower one-sided 95 % confidence band of the mean line at the lowest and highest tested normal
+    stress; the characteristic line is the chord through those two band points. The band is
+    concave, so the chord lies under it over the whole tested range. Whether this line, the
+    prediction band (local failure) or another line suits a design is the engineer's choice.
+    """
+    if fit.through_origin:
+        return None
+    low, high = fit.normal_stress_range_kpa
+    try:
+        band = analysis.regression_lower_band(
+            fit, [low, high], kind="mean", confidence=CHARACTERISTIC_CONFIDENCE
+        )
+    except analysis.InsufficientDataError:
+        return None
+    band_low, band_high = (float(v) for v in band.lower_kpa)
+    tan_phi = (band_high - band_low) / (high - low)
+    return {
+        "method": (
+            "line through the lower one-sided 95 % confidence band of the mean regression line "
+            "at the lowest and highest tested normal stress"
+        ),
+        "band_kind": band.kind,
+        "confidence": band.confidence,
+        "t_value": band.t_value,
+        "normal_stress_min_kpa": low,
+        "normal_stress_max_kpa": high,
+        "band_at_min_kpa": band_low,
+        "band_at_max_kpa": band_high,
+        "cohesion_kpa": band_low - tan_phi * low,
+        "tan_phi": tan_phi,
+        "friction_angle_deg": math.degrees(math.atan(tan_phi)),
+        "note": band.note,
+    }
+
+
 def envelope_result_store(
     *,
     run: ComputationRun,
@@ -272,6 +361,7 @@ def envelope_result_store(
             else None
         ),
         warnings=[_flag_dict(w) for w in (*fit.warnings, *set_flags)],
+        characteristic=envelope_characteristic(fit),
     )
 
 

@@ -97,6 +97,18 @@ def _calibration_fingerprint(calibration: Calibration) -> dict[str, Any]:
     }
 
 
+def _force_uncertainty(stage: ShearStage) -> dict[str, float] | None:
+    """The force calibration certificate's expanded uncertainty U [N] and its coverage factor k,
+    or None when the stage has no calibration record or the record gives no U."""
+    record = stage.force_calibration
+    if record is None or record.expanded_uncertainty_n is None:
+        return None
+    return {
+        "expanded_n": float(record.expanded_uncertainty_n),
+        "coverage_factor_k": float(record.coverage_factor_k),
+    }
+
+
 def stage_inputs_load(stage: ShearStage) -> StageInputs:
     """Read a stage's readings (two queries) and settings into :class:`StageInputs`."""
     test = stage.test
@@ -123,6 +135,7 @@ def stage_inputs_load(stage: ShearStage) -> StageInputs:
         "normal_force_n": stage_normal_force_n(stage, box),
         "calibration": _calibration_fingerprint(calibration),
         "calibration_record_id": stage.force_calibration_id,
+        "force_uncertainty": _force_uncertainty(stage),
         "test_date": stage_test_date(stage).isoformat(),
         "specimen": {
             "height_mm": specimen.height_mm,

@@ -81,8 +81,35 @@ def calibration_record_create(
         record.as_analysis()
     except (AnalysisError, TypeError, ValueError) as exc:
         raise ServiceError(f"Calibration {certificate_number}: {exc}") from exc
-    _save(record, user)
+    with transaction.atomic():
+        _save(record, user)
+        stages_relink(user=user, device=device)
     return record
+
+
+def stages_relink(*, user: User, device: ForceDevice) -> list[ShearStage]:
+    """Point every stage of an unreported test set that uses ``device`` at the certificate in
+    force on its test date, now that a certificate was added; each stage whose certificate
+    changes is reduced again. Returns those stages."""
+    from testing.services.imports import request_stage_reduction
+
+    changed = []
+    stages = ShearStage.objects.filter(
+        force_calibration__device=device, test__released_at__isnull=True
+    ).select_related("force_calibration", "test")
+    for stage in stages:
+        when = stage_test_date(stage)
+        record = calibration_in_force(device=device, on=when) if when is not None else None
+        if record is None or record.pk == stage.force_calibration_id:
+            continue
+        with acting(user, f"force calibration {record.certificate_number}"):
+            stage.force_calibration = record
+            stage.save(update_fields=["force_calibration"])
+        request_stage_reduction(
+            stage=stage, user=user, reason=f"force calibration {record.certificate_number} added"
+        )
+        changed.append(stage)
+    return changed
 
 
 def calibration_in_force(*, device: ForceDevice, on: dt.date) -> CalibrationRecord | None:

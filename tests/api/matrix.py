@@ -143,6 +143,8 @@ _reports = staff_record(CREATE_BY_TECHNICIAN)
 # Readings upload to an unreported stage: technicians and the lab manager (201); checkers and
 # approvers do not enter readings (the service's 403).
 _READINGS_UPLOAD = row(401, 403, 403, (201, 201), 403, 403, (201, 201), 401)
+# Linking a stage to the force device its readings were taken with: who sets up stages.
+_LINK_CALIBRATION = row(401, 403, 403, (200, 200), 403, 403, (200, 200), 401)
 # Recompute requests: any lab staff (202 Accepted); clients refused.
 _RECOMPUTE = row(401, 403, 403, (202, 202), (202, 202), (202, 202), (202, 202), 401)
 # Stage exclusion on a reported set: the role check first (approvers may not), then the rule that a
@@ -230,6 +232,7 @@ MATRIX: dict[str, dict[str, Row]] = {
     "api:stage-exclude": post_action(_EXCLUDE_ON_REPORTED),
     "api:stage-include": post_action(_EXCLUDE_ON_REPORTED),
     "api:stage-readings-upload": post_action(_READINGS_UPLOAD),
+    "api:stage-force-calibration": post_action(_LINK_CALIBRATION),
     "api:computation-run-list": {
         "GET": STAFF_LIST,
         "POST": _STAFF_ONLY_OTHER,

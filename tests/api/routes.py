@@ -40,6 +40,7 @@ OBJECT_OF_ROUTE = {
     "api:report-revision-issue": "approved_revision",
     # Readings can change only while the set is unreported.
     "api:stage-readings-upload": "open_stage",
+    "api:stage-force-calibration": "open_stage",
 }
 MISSING_ID = 987_654_321
 

@@ -45,6 +45,8 @@ def _body(route: str, method: str, persona: str, world: World, side: Any) -> dic
         return token_body(None if user is None else user.username)
     if route in ACTION_BODIES:
         return ACTION_BODIES[route]
+    if route == "api:stage-force-calibration":  # the device of the stage's own side
+        return {"device": side.force_device.pk, "on": "2026-06-01"}
     if route.endswith("-list") and side is not None:
         return create_payload(route, world, side)
     return {}

@@ -6,11 +6,12 @@ from django.db.models import Q
 from rest_framework import serializers
 
 from testing import access
-from testing.api.fields import ScopedRelatedField
+from testing.api.fields import LabDateField, ScopedRelatedField, lab_wide
 from testing.api.serializers.base import InputSerializer, OutputSerializer
 from testing.models import (
     ConsolidationReading,
     DirectShearTest,
+    ForceDevice,
     Project,
     ShearReading,
     ShearStage,
@@ -91,6 +92,26 @@ class StageIn(InputSerializer):
     class Meta:
         model = ShearStage
         fields = ["test", "specimen", *STAGE_FIELDS]
+
+
+class StageCalibrationIn(serializers.Serializer):
+    """The force device the stage's readings were taken with; the stage is linked to that
+    device's certificate in force on the stage's test date (or on ``on``)."""
+
+    device = ScopedRelatedField(model=ForceDevice, scope=lab_wide)
+    on = LabDateField(
+        required=False, help_text="Test date to look the certificate up on (default: the stage's)."
+    )
+
+
+class StageCalibrationOut(serializers.Serializer):
+    force_calibration = serializers.IntegerField(help_text="Calibration record id.")
+    certificate_number = serializers.CharField()
+    calibrated_on = serializers.DateField()
+    due_on = serializers.DateField()
+    valid_on_test_date = serializers.BooleanField(
+        help_text="False: the certificate had expired; the stage carries a flag that blocks approval."
+    )
 
 
 class ShearReadingOut(OutputSerializer):

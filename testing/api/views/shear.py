@@ -32,7 +32,7 @@ from testing.models import (
     ShearReading,
     ShearStage,
 )
-from testing.services import computation, imports, readings_entry, shear_setup
+from testing.services import computation, equipment, imports, readings_entry, shear_setup
 
 
 @extend_schema_view(create=extend_schema(request=s.TestSetIn, responses={201: s.TestSetOut}))
@@ -158,6 +158,35 @@ class StageViewSet(CreateViaServiceMixin, RecordViewSet):
             consolidation_rows=stored.consolidation_rows,
             shear_rows=stored.shear_rows,
             replaced_rows=stored.replaced_rows,
+        )
+
+    @extend_schema(request=s.StageCalibrationIn, responses={200: s.StageCalibrationOut})
+    @action(detail=True, methods=["post"], url_path="force-calibration")
+    def force_calibration(self, request: Request, pk: str | None = None) -> Response:
+        """Link the stage to the force device its readings were taken with: the device's
+        certificate in force on the stage's test date is recorded and the stage reduced again.
+        An expired certificate is linked all the same and flagged. Technicians and the lab
+        manager; refused once the test set has been reported."""
+        stage = self.get_object()
+        body = s.StageCalibrationIn(data=request.data, context=self.get_serializer_context())
+        body.is_valid(raise_exception=True)
+        record = equipment.stage_calibration_link(
+            user=self.acting_user,
+            stage=stage,
+            device=body.validated_data["device"],
+            on=body.validated_data.get("on"),
+        )
+        when = body.validated_data.get("on") or equipment.stage_test_date(stage)
+        return Response(
+            s.StageCalibrationOut(
+                {
+                    "force_calibration": record.pk,
+                    "certificate_number": record.certificate_number,
+                    "calibrated_on": record.calibrated_on,
+                    "due_on": record.due_on,
+                    "valid_on_test_date": when is not None and record.due_on >= when,
+                }
+            ).data
         )
 
     @extend_schema(request=rs.StageExclusionIn, responses={204: None})

@@ -81,6 +81,13 @@ def render_context(
         "cautions": CAUTIONS,
         "generated_at": timezone.now(),
         "changes": content.get("changes", []),
+        # Characteristic values are an interpretation, printed apart from the test results.
+        "interpretations": [
+            {"test": test["reference"], "label": e["label"], **e["characteristic"]}
+            for test in content["tests"]
+            for e in test["envelopes"]
+            if e.get("characteristic")
+        ],
     }
 
 

@@ -253,6 +253,7 @@ def shear_curves_chart(test: dict[str, Any]) -> Chart:
         y_label="Shear stress τ [kPa]",
         series=series,
         y_from_zero=True,
+        legend_loc="outside right",  # the curves fill every corner between them
     )
 
 

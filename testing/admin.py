@@ -54,7 +54,14 @@ class OrganisationAdmin(admin.ModelAdmin[Organisation]):
 
 @admin.register(Project)
 class ProjectAdmin(admin.ModelAdmin[Project]):
-    list_display = ("reference", "name", "organisation", "site_name", "created_at")
+    list_display = (
+        "reference",
+        "name",
+        "organisation",
+        "site_name",
+        "agreed_turnaround_days",
+        "created_at",
+    )
     list_filter = ("organisation",)
     search_fields = ("reference", "name", "client_reference", "site_name")
     list_select_related = ("organisation",)

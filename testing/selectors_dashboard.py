@@ -177,6 +177,13 @@ class OverdueSample:
     status_label: str
     due_on: date
     days_overdue: int
+    project_id: int
+    project_reference: str
+    project_name: str
+    agreed_turnaround_days: int | None
+    """The project's agreed turnaround; None when it has none and the lab's default applies."""
+    turnaround_days: int
+    """The turnaround that applies: the agreed one, else the lab's default."""
 
 
 @dataclass(frozen=True)
@@ -329,7 +336,9 @@ def overdue_by_project(*, user: AnyUser, today: date) -> list[ProjectOverdueRow]
 
 
 def overdue_samples(*, user: AnyUser, today: date, limit: int = 20) -> list[OverdueSample]:
-    """The open samples furthest past their due date (oldest due first)."""
+    """The open samples furthest past their due date (oldest due first), each with its project
+    and the turnaround agreed on it (one query: the project is already joined for its reference)."""
+    default_days = int(settings.TAULINE_DEFAULT_TURNAROUND_DAYS)
     rows = (
         _staff_samples(user)
         .filter(status__in=_OPEN, due_on__lt=today)
@@ -341,6 +350,9 @@ def overdue_samples(*, user: AnyUser, today: date, limit: int = 20) -> list[Over
             "reference",
             "status",
             "due_on",
+            "borehole__project_id",
+            "borehole__project__name",
+            "borehole__project__agreed_turnaround_days",
         )[:limit]
     )
     return [
@@ -350,8 +362,23 @@ def overdue_samples(*, user: AnyUser, today: date, limit: int = 20) -> list[Over
             status_label=SampleStatus(status).label,
             due_on=due_on,
             days_overdue=(today - due_on).days,
+            project_id=project_id,
+            project_reference=project,
+            project_name=project_name,
+            agreed_turnaround_days=agreed,
+            turnaround_days=default_days if agreed is None else agreed,
         )
-        for pk, project, borehole, reference, status, due_on in rows
+        for (
+            pk,
+            project,
+            borehole,
+            reference,
+            status,
+            due_on,
+            project_id,
+            project_name,
+            agreed,
+        ) in rows
         if due_on is not None
     ]
 
@@ -437,15 +464,17 @@ def _data_mark() -> tuple[int, int]:
 def dashboard_cached(*, user: AnyUser, today: date | None = None) -> Dashboard:
     """The dashboard as :func:`dashboard_for_user`, shared by all staff through the cache for
     ``TAULINE_DASHBOARD_CACHE_SECONDS``. The key carries the newest event and sample-history ids,
-    so a new, edited or moved sample shows at once; only renamed projects, clients or people
-    wait for the time-out. The page says when the figures were computed."""
+    so a new, edited or moved sample shows at once; only renamed projects, clients or people, and
+    changed turnaround agreements, wait for the time-out. The page says when the figures were
+    computed."""
     ttl = settings.TAULINE_DASHBOARD_CACHE_SECONDS
     if ttl <= 0 or not access.is_lab_staff(user):
         return dashboard_for_user(user=user, today=today)
     today = today or timezone.localdate()
     events, edits = _data_mark()
+    # v2: overdue samples carry their project and its turnaround (v1 entries lack them).
     key = (
-        f"tauline:dashboard:v1:{connection.settings_dict['NAME']}:{today.isoformat()}:"
+        f"tauline:dashboard:v2:{connection.settings_dict['NAME']}:{today.isoformat()}:"
         f"{events}:{edits}"
     )
     found = cache.get(key)

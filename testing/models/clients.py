@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from django.conf import settings
+from django.core.validators import MinValueValidator
 from django.db import models
 from django.db.models import Q
 from django.db.models.functions import Lower
@@ -42,6 +44,15 @@ class Project(models.Model):
     site_name = models.CharField(max_length=200, blank=True)
     site_location = models.CharField(max_length=200, blank=True)
     client_engineer = models.CharField(max_length=120, blank=True)
+    agreed_turnaround_days = models.PositiveSmallIntegerField(
+        null=True,
+        blank=True,
+        validators=[MinValueValidator(1)],
+        help_text=(
+            "Working turnaround agreed with the client, in calendar days from receipt; "
+            "blank: the lab's default (TAULINE_DEFAULT_TURNAROUND_DAYS)."
+        ),
+    )
     created_at = models.DateTimeField(auto_now_add=True)
 
     history = AuditedHistory()
@@ -50,10 +61,22 @@ class Project(models.Model):
         ordering = ["-created_at", "reference"]
         constraints = [
             models.CheckConstraint(name="project_reference_not_blank", condition=~Q(reference="")),
+            models.CheckConstraint(
+                name="project_agreed_turnaround_positive",
+                condition=Q(agreed_turnaround_days__isnull=True) | Q(agreed_turnaround_days__gte=1),
+            ),
         ]
 
     def __str__(self) -> str:
         return f"{self.reference} {self.name}"
+
+    @property
+    def turnaround_days(self) -> int:
+        """Calendar days from receipt to a sample's due date: the agreed turnaround, else the lab's
+        default."""
+        if self.agreed_turnaround_days is not None:
+            return self.agreed_turnaround_days
+        return int(settings.TAULINE_DEFAULT_TURNAROUND_DAYS)
 
 
 class Borehole(models.Model):

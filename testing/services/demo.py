@@ -289,6 +289,7 @@ def load_demo(*, now: datetime | None = None) -> bool:
         site_name="Harlow Moss link road",
         site_location="Harlow Moss, Northshire",
         client_engineer="R. Okafor",
+        agreed_turnaround_days=21,
     )
     boreholes = {
         ref: Borehole.objects.create(

@@ -6,7 +6,6 @@ from datetime import date, datetime, timedelta
 from decimal import Decimal
 from typing import Any
 
-from django.conf import settings
 from django.contrib.auth.models import User
 from django.db import transaction
 from django.utils import timezone
@@ -76,12 +75,13 @@ def sample_receive(
 ) -> Sample:
     """Log a sample in as received; its first lifecycle event is written with it.
 
-    ``due_on`` defaults to the receipt date plus the lab's standard turnaround.
+    ``due_on`` defaults to the receipt date plus the turnaround agreed on the borehole's project,
+    or the lab's default turnaround when the project has no agreement.
     """
     _require_records_role(user)
     moment = at or timezone.now()
     received = received_on or timezone.localdate(moment)
-    due = due_on or received + timedelta(days=settings.TAULINE_DEFAULT_TURNAROUND_DAYS)
+    due = due_on or received + timedelta(days=borehole.project.turnaround_days)
     sample = Sample(
         borehole=borehole,
         reference=reference,

@@ -63,6 +63,7 @@ class ProjectOut(OutputSerializer):
             "site_name",
             "site_location",
             "client_engineer",
+            "agreed_turnaround_days",
             "created_at",
             "sample_count",
         ]
@@ -85,7 +86,9 @@ class ProjectIn(InputSerializer):
             "site_name",
             "site_location",
             "client_engineer",
+            "agreed_turnaround_days",
         ]
+        extra_kwargs = {"agreed_turnaround_days": {"min_value": 1}}
 
 
 # --- Boreholes ------------------------------------------------------------------------------

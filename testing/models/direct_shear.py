@@ -57,6 +57,15 @@ class ShearType(models.TextChoices):
     REVERSALS = "reversals", "Multiple reversals (residual)"
 
 
+class FailureChoice(models.TextChoices):
+    """Which point of each stage is taken as failure (the points the analysis can pick)."""
+
+    PEAK = "peak", "Peak shear stress"
+    PEAK_RATIO = "peak_ratio", "Peak stress ratio τ/σn"
+    AT_DISPLACEMENT = "at_displacement", "Shear stress at a stated displacement"
+    END_OF_TRAVEL = "end_of_travel", "Shear stress at the end of travel"
+
+
 class DirectShearTest(models.Model):
     """A set of specimens tested together under one method profile, apparatus and box."""
 
@@ -84,6 +93,18 @@ class DirectShearTest(models.Model):
     )
     area_model = models.CharField(
         max_length=10, choices=AreaModel.choices, default=AreaModel.NOMINAL
+    )
+    failure_criterion = models.CharField(
+        max_length=16,
+        choices=FailureChoice.choices,
+        default=FailureChoice.PEAK,
+        help_text="Which point of each stage is failure (the client's instruction or the method's).",
+    )
+    stated_displacement_mm = models.FloatField(
+        null=True,
+        blank=True,
+        help_text="For failure at a stated displacement: the horizontal displacement [mm]; "
+        "blank: 10 % of the box length.",
     )
     requested_on = models.DateField()
     due_on = models.DateField(null=True, blank=True)
@@ -120,6 +141,10 @@ class DirectShearTest(models.Model):
             ),
             models.CheckConstraint(
                 name="shear_test_box_length_positive", condition=Q(box_length_mm__gt=0)
+            ),
+            models.CheckConstraint(
+                name="shear_test_stated_displacement_positive",
+                condition=Q(stated_displacement_mm__isnull=True) | Q(stated_displacement_mm__gt=0),
             ),
             models.CheckConstraint(
                 name="shear_test_box_width",

@@ -72,12 +72,40 @@ def stage_reduction_compute(
         normal_force_n=inputs.settings["normal_force_n"],
         box=box_geometry(stage.test),
         area_model=inputs.settings["area_model"],
+        criteria=analysis.StageCriteria(
+            stated_displacement_mm=inputs.settings.get("stated_displacement_mm")
+        ),
         max_rate_mm_per_min=context.max_rate_mm_per_min,
     )
 
 
+def failure_point(reduction: analysis.StageReduction, criterion: str) -> analysis.FailurePoint:
+    """The stage's failure point under the test set's criterion. A stated displacement the stage
+    never reached is an error a person can act on, not a silently different point."""
+    if criterion == "at_displacement":
+        if reduction.at_displacement is None:
+            reached = float(reduction.end_of_travel.horizontal_mm)
+            raise analysis.AnalysisError(
+                f"The stage never reached the stated displacement (largest horizontal "
+                f"displacement {reached:.2f} mm): give a smaller stated displacement or choose "
+                "another failure criterion for the test set."
+            )
+        return reduction.at_displacement
+    points = {
+        "peak": reduction.peak,
+        "peak_ratio": reduction.peak_ratio,
+        "end_of_travel": reduction.end_of_travel,
+    }
+    if criterion not in points:
+        raise analysis.AnalysisError(f"Unknown failure criterion {criterion!r}.")
+    return points[criterion]
+
+
 def failure_shear_stress_u_kpa(
-    reduction: analysis.StageReduction, inputs: StageInputs, box: analysis.BoxGeometry
+    reduction: analysis.StageReduction,
+    inputs: StageInputs,
+    box: analysis.BoxGeometry,
+    failure: analysis.FailurePoint | None = None,
 ) -> float | None:
     """Expanded uncertainty U (k = 2) of τ at failure [kPa], or None when the force calibration
     gives no uncertainty (no calibration record, or a certificate without U) or the failure force
@@ -97,7 +125,7 @@ def failure_shear_stress_u_kpa(
     certificate = inputs.settings.get("force_uncertainty")
     if certificate is None:
         return None
-    failure = reduction.peak
+    failure = failure or reduction.peak
     force_n = failure.shear_stress_kpa * float(reduction.area_mm2[failure.index]) / 1000.0
     if not force_n > 0.0:
         return None
@@ -126,7 +154,7 @@ def stage_result_store(
     context: StageContext,
 ) -> StageResult:
     """Write the result row of one successful stage reduction."""
-    failure = reduction.peak
+    failure = failure_point(reduction, inputs.settings.get("failure_criterion") or "peak")
     ultimate = reduction.ultimate
     residual = reduction.residual.point if reduction.residual is not None else None
     box = box_geometry(stage.test)
@@ -159,7 +187,7 @@ def stage_result_store(
         measured_rate_mm_per_min=_finite_or_none(reduction.measured_rate_mm_per_min),
         max_rate_mm_per_min=_finite_or_none(reduction.max_rate_mm_per_min),
         phase=context.details,
-        shear_stress_u_kpa=failure_shear_stress_u_kpa(reduction, inputs, box),
+        shear_stress_u_kpa=failure_shear_stress_u_kpa(reduction, inputs, box, failure),
         # σn: ``analysis.normal_stress_uncertainty`` needs the standard uncertainties of the
         # direct, hanger and slotted masses, of the lever ratio and of the box dimensions (or of
         # a load frame's stress). None of these is recorded anywhere (stage, apparatus or

@@ -130,6 +130,8 @@ def stage_inputs_load(stage: ShearStage) -> StageInputs:
     settings = {
         "box": {"shape": box.shape, "length_mm": box.length_mm, "width_mm": box.width_mm},
         "area_model": "corrected" if test.area_model == AreaModel.CORRECTED else "nominal",
+        "failure_criterion": test.failure_criterion,
+        "stated_displacement_mm": test.stated_displacement_mm,
         "method": test.method,
         "method_edition": test.method_edition,
         "normal_force_n": stage_normal_force_n(stage, box),

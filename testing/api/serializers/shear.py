@@ -29,6 +29,8 @@ TEST_FIELDS = [
     "condition",
     "shear_type",
     "area_model",
+    "failure_criterion",
+    "stated_displacement_mm",
     "requested_on",
     "due_on",
     "instructions",

@@ -188,11 +188,11 @@ def _stage_content(stage: ShearStage, result: StageResult) -> dict[str, Any]:
     }
 
 
-def _envelope_content(envelope: EnvelopeResult) -> dict[str, Any]:
+def _envelope_content(envelope: EnvelopeResult, test: DirectShearTest) -> dict[str, Any]:
     return {
         "envelope_result_id": envelope.pk,
         "envelope_type": envelope.envelope_type,
-        "label": envelope.get_envelope_type_display(),
+        "label": test.envelope_label(envelope.envelope_type),
         "analysis_version": envelope.analysis_version,
         "fit_method": envelope.fit_method,
         "through_origin": envelope.through_origin,
@@ -253,7 +253,7 @@ def _test_content(test: DirectShearTest) -> tuple[dict[str, Any], list[int], lis
         "tested_from": started[0] if started else None,
         "tested_to": started[-1] if started else None,
         "stages": stage_items,
-        "envelopes": [_envelope_content(e) for _, e in sorted(envelopes.items())],
+        "envelopes": [_envelope_content(e, test) for _, e in sorted(envelopes.items())],
     }
     return (
         content,

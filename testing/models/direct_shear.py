@@ -162,6 +162,16 @@ class DirectShearTest(models.Model):
     def __str__(self) -> str:
         return f"{self.project.reference}/{self.reference}"
 
+    def envelope_label(self, envelope_type: str) -> str:
+        """An envelope's name on pages and reports: the failure envelope is called "Peak" only
+        when failure is the peak shear stress."""
+        from testing.models.results import EnvelopeType
+
+        label = str(EnvelopeType(envelope_type).label)
+        if envelope_type == EnvelopeType.PEAK and self.failure_criterion != FailureChoice.PEAK:
+            return f"Failure ({FailureChoice(self.failure_criterion).label.lower()})"
+        return label
+
     @property
     def method_title(self) -> str:
         """The method as a standard is cited: see :func:`method_title`."""

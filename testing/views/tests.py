@@ -42,7 +42,7 @@ def test_detail(request: HttpRequest, test_id: int) -> HttpResponse:
     curves = [charts.stage_curves(row.stage) for row in page.rows]
     envelopes = [
         {
-            "label": EnvelopeType(t).label,
+            "label": test.envelope_label(t),
             "envelope": page.envelopes[t],
             "figure": charts.envelope_figure(page.envelopes[t]),
             "chart_id": f"chart-env-{t}",

@@ -106,3 +106,11 @@ def test_the_api_takes_the_criterion_and_refuses_a_non_positive_displacement(
         format="json",
     )  # fmt: skip
     assert refused.status_code == 400
+
+
+def test_the_failure_envelope_is_named_after_the_criterion(cast: Cast, records_a: Records) -> None:
+    test = build_test_set(user=cast.technician, project=records_a.project, sample=records_a.sample)
+    assert test.envelope_label("peak") == "Peak"
+    test.failure_criterion = "end_of_travel"
+    assert test.envelope_label("peak") == "Failure (shear stress at the end of travel)"
+    assert test.envelope_label("ultimate") == "Ultimate (constant volume)"

@@ -165,3 +165,26 @@ def readings_change_record(
         sha256_after=after.sha256,
         reason=reason.strip(),
     )
+
+
+def readings_trail_problems(stage_id: int) -> list[str]:
+    """Check one stage's readings against its audit rows: every change starts from the digest the
+    previous one left (the first from no readings at all), and the readings stored now are exactly
+    what the last change left. Empty when the trail is whole."""
+    problems: list[str] = []
+    expected = rows_state([], []).sha256
+    changes = ReadingsChange.objects.filter(stage_id=stage_id).order_by("at", "id")
+    for change_id, before, after in changes.values_list("id", "sha256_before", "sha256_after"):
+        if before != expected:
+            problems.append(
+                f"readings change {change_id} starts from readings sha256 {before[:12]}…, but the "
+                f"trail had reached {expected[:12]}…"
+            )
+        expected = after
+    current = readings_state(stage_id).sha256
+    if current != expected:
+        problems.append(
+            f"the stored readings (sha256 {current[:12]}…) are not what the last recorded change "
+            f"left ({expected[:12]}…): they were changed outside Tauline"
+        )
+    return problems

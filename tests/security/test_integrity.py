@@ -15,6 +15,7 @@ from django.core.management import CommandError, call_command
 from django.db import connection
 
 from reports.models import AuditEvent, ReportRevision
+from testing.models import ShearReading
 
 pytestmark = pytest.mark.security
 
@@ -59,7 +60,11 @@ def test_verify_integrity_passes_then_names_the_revision_for_each_kind_of_damage
     assert "ok: 1" in _verify()[0]
 
     # One audit row deleted (a queryset delete goes around the model's guard, as a direct database
-    # edit would), then the first link of the content-hash chain.
+    # edit would; on PostgreSQL the trigger that refuses deletes is dropped first, as in a
+    # tampered restored dump), then the first link of the content-hash chain.
+    if connection.vendor == "postgresql":
+        with connection.cursor() as cursor:
+            cursor.execute("DROP TRIGGER IF EXISTS reports_audit_not_deleted ON reports_auditevent")
     trail = AuditEvent.objects.filter(subject=f"revision:{issued_revision.pk}")
     assert trail.filter(action="revision_approved").delete()[0] == 1
     message = _verify_fails()
@@ -81,3 +86,19 @@ def test_content_changed_in_the_database_fails(issued_revision: ReportRevision) 
     message = _verify_fails()
     assert f"{issued_revision.label} (revision id {issued_revision.pk})" in message
     assert "frozen content no longer matches" in message
+
+
+def test_readings_changed_around_the_application_fail(issued_revision: ReportRevision) -> None:
+    """The readings behind an issued report, edited directly in the database: the stage's readings
+    no longer hash to what its last recorded change left."""
+    out, _ = _verify()
+    assert "readings of" in out and "match their audit trail" in out
+    test = issued_revision.report.tests.first()
+    assert test is not None
+    stage = test.stages.order_by("stage_number").first()
+    assert stage is not None
+    reading = ShearReading.objects.filter(stage=stage).order_by("seq")[10]
+    ShearReading.objects.filter(pk=reading.pk).update(force_reading=reading.force_reading + 1)
+    message = _verify_fails()
+    assert f"stage {stage.stage_number} (stage id {stage.pk})" in message
+    assert "changed outside Tauline" in message

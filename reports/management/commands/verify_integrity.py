@@ -11,6 +11,10 @@ For each revision that was ever issued (current, superseded or withdrawn after i
   the first content hash to the final one, check, approval, issue request and issue by the
   recorded people, in that order, plus supersession or withdrawal where the state says so.
 
+And for every stage: its readings-change audit rows link from no readings to the last change,
+and the readings stored now hash to what the last change left (nothing was changed around the
+application).
+
 Run it after a restore (``scripts/restore-drill.sh`` does) and on a schedule.
 """
 
@@ -34,6 +38,8 @@ from reports.models import (
 )
 from reports.rendering.context import content_sha256
 from reports.verification import revision_signature_check
+from testing.models import ShearStage
+from testing.services.readings_audit import readings_trail_problems
 
 # Workflow steps every issued revision went through, in order: (audit action, revision field
 # holding the person who had to do it).
@@ -209,6 +215,16 @@ class Command(BaseCommand):
             problems += _audit_problems(revision, trail)
             failures += [f"{_name(revision)}: {problem}" for problem in problems]
 
+        stages = 0
+        for stage_id, test_reference, stage_number in ShearStage.objects.order_by("id").values_list(
+            "id", "test__reference", "stage_number"
+        ):
+            stages += 1
+            failures += [
+                f"test set {test_reference} stage {stage_number} (stage id {stage_id}): {problem}"
+                for problem in readings_trail_problems(stage_id)
+            ]
+
         if failures:
             for line in failures:
                 self.stderr.write(f"FAIL {line}")
@@ -219,5 +235,6 @@ class Command(BaseCommand):
         self.stdout.write(
             f"ok: {checked} issued revision(s) of {len(revisions)} checked (PDF sha256, "
             f"{'signature, ' if check_signature else ''}sign-offs, audit trail); "
-            f"{sum(len(v) for v in events.values())} audit events read."
+            f"{sum(len(v) for v in events.values())} audit events read; readings of {stages} "
+            "stage(s) match their audit trail."
         )

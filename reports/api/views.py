@@ -27,6 +27,7 @@ from rest_framework.request import Request
 from rest_framework.response import Response
 
 from reports import selectors, services
+from reports.api.filters import ReportFilter, RevisionFilter
 from reports.models import Report, ReportRevision
 from testing import access
 from testing.api.fields import ScopedRelatedField
@@ -141,6 +142,8 @@ class ReportRevisionViewSet(
 ):
     serializer_class = RevisionSerializer
     permission_classes = [LabAccess]
+    filterset_class = RevisionFilter
+    ordering_fields = ["number", "issued_at", "id"]
 
     def get_queryset(self) -> QuerySet[ReportRevision]:
         return selectors.revisions_for_user(user=self.request.user).order_by("-id")
@@ -216,6 +219,8 @@ class ReportViewSet(
 
     serializer_class = ReportOut
     permission_classes = [LabAccess, LabStaffOnly]
+    filterset_class = ReportFilter
+    ordering_fields = ["number", "created_at", "id"]
     lookup_value_regex = r"[0-9]{1,18}"
 
     def get_queryset(self) -> QuerySet[Report]:

@@ -18,7 +18,7 @@ from scipy import stats
 
 from testing import analysis
 from testing.models import EnvelopeResult, ShearStage
-from testing.services.direct_shear import stage_reduction_compute
+from testing.services.direct_shear import failure_point, stage_reduction_compute
 from testing.services.stage_inputs import stage_inputs_load
 
 # Our own palette: deep teal, ochre, plum, moss, brick, slate (distinct for colour-blind readers
@@ -71,6 +71,8 @@ class StageCurves:
     t100_min: float | None
     consolidation_note: str
     error: str = ""
+    casagrande: analysis.CasagrandeResult | None = None
+    casagrande_note: str = ""
 
 
 def stage_curves(stage: ShearStage) -> StageCurves:
@@ -89,6 +91,12 @@ def stage_curves(stage: ShearStage) -> StageCurves:
             note = str(exc)
     else:
         note = "Fewer than 4 consolidation readings: no root-time construction."
+    casagrande: analysis.CasagrandeResult | None = None
+    casagrande_note = ""
+    try:
+        casagrande = analysis.casagrande_log_time(cons_t, cons_d)
+    except analysis.AnalysisError as exc:
+        casagrande_note = str(exc)
     normal = float(inputs.settings["normal_force_n"])
     try:
         reduction = stage_reduction_compute(stage, inputs)
@@ -108,7 +116,13 @@ def stage_curves(stage: ShearStage) -> StageCurves:
             t100,
             note,
             error=str(exc),
+            casagrande=casagrande,
+            casagrande_note=casagrande_note,
         )
+    try:  # the failure point the test set asks for (the stored result uses the same rule)
+        failure = failure_point(reduction, stage.test.failure_criterion)
+    except analysis.AnalysisError:
+        failure = reduction.peak
     box_area = reduction.box.plan_area_mm2
     return StageCurves(
         stage_number=stage.stage_number,
@@ -116,14 +130,16 @@ def stage_curves(stage: ShearStage) -> StageCurves:
         horizontal_mm=_floats(inputs.horizontal_mm),
         vertical_mm=_floats(inputs.vertical_mm),
         shear_stress_kpa=_floats(reduction.shear_stress_kpa),
-        failure_horizontal_mm=reduction.peak.horizontal_mm,
-        failure_shear_stress_kpa=reduction.peak.shear_stress_kpa,
-        failure_vertical_mm=reduction.peak.vertical_mm,
+        failure_horizontal_mm=failure.horizontal_mm,
+        failure_shear_stress_kpa=failure.shear_stress_kpa,
+        failure_vertical_mm=failure.vertical_mm,
         consolidation_time_min=cons_t,
         consolidation_settlement_mm=cons_d,
         taylor=taylor,
         t100_min=t100,
         consolidation_note=note,
+        casagrande=casagrande,
+        casagrande_note=casagrande_note,
     )
 
 
@@ -274,6 +290,72 @@ def consolidation_figure(c: StageCurves, colour_index: int = 0) -> Figure:
         high = max([*shown, c.taylor.d100_mm])
         pad = 0.08 * (high - low or 1.0)
         layout["xaxis"]["range"] = [0.0, end]
+        layout["yaxis"]["range"] = [high + pad, low - pad]  # settlement downwards
+    else:
+        layout["yaxis"]["autorange"] = "reversed"
+    return {"data": data, "layout": layout}
+
+
+def log_time_figure(c: StageCurves, colour_index: int = 0) -> Figure:
+    """Settlement against log time with Casagrande's construction: the tangent at the steepest
+    part of the primary curve, the secondary (creep) line, d0 from the early parabola, and the
+    t50 and t100 points."""
+    colour = PALETTE[colour_index % len(PALETTE)]
+    pairs = [
+        (t, d)
+        for t, d in zip(c.consolidation_time_min, c.consolidation_settlement_mm, strict=False)
+        if t > 0
+    ]
+    data: list[dict[str, Any]] = [
+        {
+            "type": "scatter",
+            "mode": "markers+lines",
+            "name": "Readings",
+            "x": [t for t, _ in pairs],
+            "y": [d for _, d in pairs],
+            "marker": {"color": colour, "size": 6},
+            "line": {"color": colour, "width": 1},
+            "hovertemplate": "t %{x:.3g} min<br>settlement %{y:.3f} mm<extra></extra>",
+        }
+    ]
+    k = c.casagrande
+    if k is not None and pairs:
+        t_first, t_last = pairs[0][0], pairs[-1][0]
+        for name, (slope, intercept), dash, line_colour in (
+            ("Primary tangent", k.primary_tangent, "dash", "#44546a"),
+            ("Secondary line", k.secondary_line, "dot", "#a33b2b"),
+        ):
+            xs = [t_first, t_last]
+            data.append(
+                {
+                    "type": "scatter",
+                    "mode": "lines",
+                    "name": name,
+                    "x": xs,
+                    "y": [slope * math.log10(x) + intercept for x in xs],
+                    "line": {"color": line_colour, "dash": dash, "width": 1.5},
+                    "hoverinfo": "skip",
+                }
+            )
+        data.append(
+            {
+                "type": "scatter",
+                "mode": "markers+text",
+                "name": "Construction points",
+                "x": [k.t50_min, k.t100_min],
+                "y": [k.d50_mm, k.d100_mm],
+                "text": [f"t50 = {k.t50_min:.2f} min", f"t100 = {k.t100_min:.2f} min"],
+                "textposition": ["top right", "bottom left"],
+                "marker": {"color": "#1c2733", "size": 9, "symbol": "x"},
+                "hovertemplate": "%{text}<br>settlement %{y:.3f} mm<extra></extra>",
+            }
+        )
+    layout = layout_for("Time t (min, log scale)", "Settlement (mm)", height=320, showlegend=False)
+    layout["xaxis"]["type"] = "log"
+    settlements = [d for _, d in pairs]
+    if k is not None and settlements:
+        low, high = min([*settlements, k.d0_mm]), max([*settlements, k.d100_mm])
+        pad = 0.08 * (high - low or 1.0)
         layout["yaxis"]["range"] = [high + pad, low - pad]  # settlement downwards
     else:
         layout["yaxis"]["autorange"] = "reversed"

@@ -62,6 +62,9 @@ def test_detail(request: HttpRequest, test_id: int) -> HttpResponse:
                 "figure": charts.consolidation_figure(c, i),
                 "chart_id": f"chart-cons-{c.stage_number}",
                 "title": f"Stage {c.stage_number}: settlement against √time",
+                "log_figure": charts.log_time_figure(c, i),
+                "log_chart_id": f"chart-cons-log-{c.stage_number}",
+                "log_title": f"Stage {c.stage_number}: settlement against log time",
             }
             for i, c in enumerate(curves)
             if c.consolidation_time_min

@@ -207,7 +207,9 @@ def run(*, smoke: bool) -> int:
 
         profiler = cProfile.Profile()
         profiler.runcall(lambda: [(page(), project_page()) for _ in range(repeats)])
-        pstats.Stats(profiler, stream=sys.stderr).sort_stats("cumulative").print_stats(40)
+        pstats.Stats(profiler, stream=sys.stderr).sort_stats(
+            os.environ.get("TAULINE_BENCH_PROFILE_SORT", "cumulative")
+        ).print_stats(40)
     page_s, bare_s = best_of(page, bare, repeats)
     ratio = page_s / bare_s
     project_s, project_bare_s = best_of(project_page, project_bare, repeats)

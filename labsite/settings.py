@@ -187,7 +187,8 @@ AUTH_PASSWORD_VALIDATORS = [
 # django-axes checks the lockout first; Django's backend checks the password.
 AUTHENTICATION_BACKENDS = [
     "labsite.security.backends.LockoutBackend",
-    "django.contrib.auth.backends.ModelBackend",
+    # Django's password backend; it loads the user's lab profile with the user.
+    "labsite.security.backends.PasswordBackend",
 ]
 # Sign-in lockout per user name (known or not, so a lockout reveals nothing) and, separately, per
 # client address (one address trying many names): the attempt that reaches the limit locks; the

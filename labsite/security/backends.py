@@ -5,6 +5,8 @@ from __future__ import annotations
 from typing import Any
 
 from axes.backends import AxesStandaloneBackend
+from django.contrib.auth import get_user_model
+from django.contrib.auth.backends import ModelBackend
 from django.http import HttpRequest
 
 
@@ -26,3 +28,16 @@ class LockoutBackend(AxesStandaloneBackend):
             return None
         super().authenticate(request, username=username, password=password, **kwargs)
         return None
+
+
+class PasswordBackend(ModelBackend):
+    """Django's password backend, loading the signed-in user's lab profile (roles) with the user:
+    every page asks for the roles, so this saves a query on every request."""
+
+    def get_user(self, user_id: Any) -> Any:
+        user_model = get_user_model()
+        try:
+            user = user_model._default_manager.select_related("lab_profile").get(pk=user_id)
+        except (user_model.DoesNotExist, ValueError, TypeError):
+            return None
+        return user if self.user_can_authenticate(user) else None

@@ -273,9 +273,9 @@ def test_project_page_query_count_does_not_grow_with_samples(
             assert a.get(url).status_code == 200
         return len(ctx.captured_queries)
 
-    # 1 session, 2 user, 3 the user's lab profile (access), 4 the project (access-scoped get),
-    # 5 boreholes, 6 their samples (prefetch), 7 released stages → test sets per sample.
-    assert count() == 7
+    # 1 session, 2 user with its lab profile (one join), 3 the project (access-scoped get),
+    # 4 boreholes, 5 their samples (prefetch), 6 released stages → test sets per sample.
+    assert count() == 6
     for i in range(5):
         sample_receive(
             user=cast.technician,
@@ -286,4 +286,4 @@ def test_project_page_query_count_does_not_grow_with_samples(
             sample_type=SampleType.SMALL_DISTURBED,
             received_on=date(2026, 11, 4),
         )
-    assert count() == 7
+    assert count() == 6

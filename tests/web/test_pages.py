@@ -296,12 +296,12 @@ def test_worklist_query_count_does_not_grow_with_the_samples(
     from tests.conftest import make_records
 
     client = _client_for(cast, "manager")
-    # 1 session, 1 user, 1 lab profile (cached on the user for the nav);
+    # 1 session, 1 user with its lab profile (one join: the password backend loads both);
     # 3 sample columns (received, scheduled, in test), each one sliced query;
     # 3 test-set columns (awaiting check, approval, issue) when the reports app is installed, else 1.
     from testing.selectors_worklist import _reports_installed
 
-    expected = 3 + 3 + (3 if _reports_installed() else 1)
+    expected = 2 + 3 + (3 if _reports_installed() else 1)
     with django_assert_num_queries(expected):
         assert client.get(reverse("worklist")).status_code == 200
     for n in range(5):
@@ -316,9 +316,9 @@ def test_test_set_page_query_count(
 ) -> None:
     client = _client_for(cast, "technician")
     n_stages = len(shear_set_a.stages)
-    # 1 session, 1 user, 1 lab profile; 1 test set (access); 1 stages with specimen, sample and
-    # borehole; 1 exclusions (prefetch, with who); 1 latest stage results; 1 latest envelopes;
+    # 1 session, 1 user with its lab profile; 1 test set (access); 1 stages with specimen, sample
+    # and borehole; 1 exclusions (prefetch, with who); 1 latest stage results; 1 latest envelopes;
     # 1 recent runs; then per stage 2 (shear and consolidation readings for the curves).
-    expected = 3 + 1 + 1 + 1 + 1 + 1 + 1 + 2 * n_stages
+    expected = 2 + 1 + 1 + 1 + 1 + 1 + 1 + 2 * n_stages
     with django_assert_num_queries(expected):
         assert client.get(reverse("test-detail", args=[shear_set_a.test.pk])).status_code == 200

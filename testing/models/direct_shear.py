@@ -106,6 +106,17 @@ class DirectShearTest(models.Model):
         help_text="For failure at a stated displacement: the horizontal displacement [mm]; "
         "blank: 10 % of the box length.",
     )
+    expected_failure_displacement_mm = models.FloatField(
+        null=True,
+        blank=True,
+        help_text="Horizontal displacement expected at failure, for the permitted rate [mm]; "
+        "blank: the method's value.",
+    )
+    fine_grained = models.BooleanField(
+        default=False,
+        help_text="Fine-grained, normally or lightly overconsolidated soil: the method's larger "
+        "displacement at failure applies (where the method has one).",
+    )
     requested_on = models.DateField()
     due_on = models.DateField(null=True, blank=True)
     instructions = models.TextField(blank=True, help_text="Client's test instructions.")
@@ -141,6 +152,11 @@ class DirectShearTest(models.Model):
             ),
             models.CheckConstraint(
                 name="shear_test_box_length_positive", condition=Q(box_length_mm__gt=0)
+            ),
+            models.CheckConstraint(
+                name="shear_test_failure_displacement_positive",
+                condition=Q(expected_failure_displacement_mm__isnull=True)
+                | Q(expected_failure_displacement_mm__gt=0),
             ),
             models.CheckConstraint(
                 name="shear_test_stated_displacement_positive",

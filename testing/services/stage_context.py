@@ -136,7 +136,13 @@ def _consolidation(context: StageContext, inputs: StageInputs) -> None:
     if t50 is None:
         return
     try:
-        limit = max_rate(context.profile, t50_min=t50, t100_min=t100)
+        limit = max_rate(
+            context.profile,
+            t50_min=t50,
+            t100_min=t100,
+            displacement_at_failure_mm=inputs.settings.get("expected_failure_displacement_mm"),
+            fine_grained=bool(inputs.settings.get("fine_grained")),
+        )
     except analysis.AnalysisError as exc:
         context.flags.append(_note("RATE_LIMIT_NOT_SET", f"Permitted rate not computed: {exc}"))
         return

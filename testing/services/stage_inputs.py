@@ -132,6 +132,8 @@ def stage_inputs_load(stage: ShearStage) -> StageInputs:
         "area_model": "corrected" if test.area_model == AreaModel.CORRECTED else "nominal",
         "failure_criterion": test.failure_criterion,
         "stated_displacement_mm": test.stated_displacement_mm,
+        "expected_failure_displacement_mm": test.expected_failure_displacement_mm,
+        "fine_grained": test.fine_grained,
         "method": test.method,
         "method_edition": test.method_edition,
         "normal_force_n": stage_normal_force_n(stage, box),

@@ -31,6 +31,8 @@ TEST_FIELDS = [
     "area_model",
     "failure_criterion",
     "stated_displacement_mm",
+    "expected_failure_displacement_mm",
+    "fine_grained",
     "requested_on",
     "due_on",
     "instructions",

@@ -19,6 +19,7 @@ from django.db import IntegrityError, transaction
 from django.db.models import Q
 from django.utils import timezone
 
+from labsite.security.lockout import lock_words, password_failure_record, password_lock
 from reports.audit import actor_name, audit_record
 from reports.models import (
     Report,
@@ -70,64 +71,6 @@ def _role_label(user: User, meaning: str) -> str:
 # Wrong sign-off passwords count against the same limit as failed sign-ins (django-axes): each is
 # recorded as an axes access attempt under the user name, with no address and this user agent, so
 # axes' per-user lockout of the sign-in page counts them too, and the same lock refuses signing.
-_SIGN_OFF_AGENT = "Tauline report sign-off"
-
-
-def _sign_in_lock(username: str, now: datetime) -> tuple[bool, datetime | None]:
-    """Whether failed sign-ins and sign-offs lock ``username`` now, and until when (None: until the
-    lock is lifted by hand). The same count axes keeps per user name within its cool-off period."""
-    from axes.conf import settings as axes_settings
-    from axes.helpers import get_cool_off, get_credentials, get_failure_limit
-    from axes.models import AccessAttempt
-
-    if not (axes_settings.AXES_ENABLED and axes_settings.AXES_LOCK_OUT_AT_FAILURE):
-        return False, None
-    limit = get_failure_limit(None, get_credentials(username))
-    cool_off = get_cool_off()
-    attempts = AccessAttempt.objects.filter(username=username)
-    if cool_off is not None:
-        attempts = attempts.filter(attempt_time__gte=now - cool_off)
-    failures = 0
-    # The lock lasts until enough of the newest failures have aged out of the cool-off period.
-    for attempt_time, count in attempts.order_by("-attempt_time").values_list(
-        "attempt_time", "failures_since_start"
-    ):
-        failures += count
-        if failures >= limit:
-            return True, (attempt_time + cool_off if cool_off is not None else None)
-    return False, None
-
-
-def _sign_in_failure_record(username: str, now: datetime, *, locked: bool) -> None:
-    """One failed sign-off, where axes counts failed sign-ins (and logs them, if it logs those)."""
-    from axes.conf import settings as axes_settings
-    from axes.handlers.proxy import AxesProxyHandler
-    from axes.models import AccessAttempt, AccessFailureLog
-
-    if not axes_settings.AXES_ENABLED:
-        return
-    fields = {
-        "username": username,
-        "ip_address": None,
-        "user_agent": _SIGN_OFF_AGENT,
-        "http_accept": "",
-        "path_info": "(report sign-off)",
-    }
-    # A row per failure: no read-modify-write to race on, and each ages out on its own.
-    AccessAttempt.objects.create(
-        **fields, get_data="", post_data="", failures_since_start=1, attempt_time=now
-    )
-    if axes_settings.AXES_ENABLE_ACCESS_FAILURE_LOG:
-        AccessFailureLog.objects.create(**fields, attempt_time=now, locked_out=locked)
-        AxesProxyHandler.remove_out_of_limit_failure_logs(username=username)
-
-
-def _lock_words(until: datetime | None) -> str:
-    if until is None:
-        return "until the lab manager lifts the lock"
-    return f"until {timezone.localtime(until):%Y-%m-%d %H:%M}"
-
-
 def _require_password(
     *, user: User, password: str | None, revision: ReportRevision, meaning: str
 ) -> None:
@@ -142,34 +85,34 @@ def _require_password(
 
     username = user.get_username()
     now = timezone.now()
-    locked, until = _sign_in_lock(username, now)
+    locked, until = password_lock(username, now)
     if locked:
         # As axes does for a sign-in refused while locked: on record, and by default it extends
         # the lock.
         if password and axes_settings.AXES_RESET_COOL_OFF_ON_FAILURE_DURING_LOCKOUT:
-            _sign_in_failure_record(username, now, locked=True)
-            until = _sign_in_lock(username, now)[1]
+            password_failure_record(username, now, locked=True)
+            until = password_lock(username, now)[1]
         audit_record(
             actor=user,
             action="signature_refused",
             subject=_subject(revision),
             new=meaning,
-            reason=f"locked after too many wrong passwords, {_lock_words(until)}",
+            reason=f"locked after too many wrong passwords, {lock_words(until)}",
         )
         raise SignatureRefused(
             "Too many wrong passwords: signing (and signing in) is locked "
-            f"{_lock_words(until)}. Nothing was signed."
+            f"{lock_words(until)}. Nothing was signed."
         )
     if password and user.is_active and user.check_password(password):
         return
     message = "Re-enter your password to sign. Nothing was signed."
     if password:
-        _sign_in_failure_record(username, now, locked=False)
-        locked, until = _sign_in_lock(username, now)
+        password_failure_record(username, now, locked=False)
+        locked, until = password_lock(username, now)
         if locked:
             message = (
                 "Wrong password, too many times: signing (and signing in) is now locked "
-                f"{_lock_words(until)}. Nothing was signed."
+                f"{lock_words(until)}. Nothing was signed."
             )
     audit_record(
         actor=user,

@@ -24,7 +24,6 @@ from testing.models import (
     Project,
     Sample,
     SampleEvent,
-    ShearReading,
     ShearStage,
     Specimen,
 )
@@ -191,22 +190,6 @@ class ShearStageAdmin(ReadOnlyAdmin):
 class ConsolidationReadingAdmin(ReadOnlyAdmin):
     list_display = ("stage", "elapsed_min", "settlement_mm")
     list_filter = ("stage__test",)
-    search_fields = ("stage__test__reference",)
-    list_select_related = ("stage__test__project",)
-
-
-@admin.register(ShearReading)
-class ShearReadingAdmin(ReadOnlyAdmin):
-    list_display = (
-        "stage",
-        "traverse",
-        "seq",
-        "elapsed_min",
-        "horizontal_mm",
-        "vertical_mm",
-        "force_reading",
-    )
-    list_filter = ("stage__test", "traverse")
     search_fields = ("stage__test__reference",)
     list_select_related = ("stage__test__project",)
 

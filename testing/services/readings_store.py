@@ -148,7 +148,13 @@ def _copy_writer(stage_id: int) -> Iterator[ShearWriter]:
         f"COPY {connection.ops.quote_name(meta.db_table)} ({', '.join(columns)}) "
         "FROM STDIN (FORMAT BINARY)"
     )
-    with connection.cursor() as cursor, cursor.cursor.copy(sql) as copy:
+    # The raw driver's COPY bypasses Django's cursor wrapper, so its errors are translated here:
+    # a refused row (a stage that does not exist, a repeated reading number) is an IntegrityError.
+    with (
+        connection.wrap_database_errors,
+        connection.cursor() as cursor,
+        cursor.cursor.copy(sql) as copy,
+    ):
         copy.write(_PGCOPY_HEADER)
 
         def write(parsed: ParsedReadings, start: int, stop: int) -> None:

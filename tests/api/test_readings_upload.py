@@ -118,11 +118,14 @@ def test_a_bad_upload_leaves_earlier_readings_exactly_as_they_were(plain_world: 
     stage = plain_world.a.open_stage
     client = token_client(plain_world.cast.technician)
     assert client.post(_url(stage), {"rows": CANONICAL_ROWS}, format="json").status_code == 201
-    before = list(ShearReading.objects.filter(stage=stage).order_by("id").values())
+    before = list(ShearReading.objects.filter(stage=stage).order_by("traverse", "seq").values())
     changes = ReadingsChange.objects.filter(stage=stage).count()
     response = client.post(_url(stage), {"file": _file(BAD_CSV)}, format="multipart")
     assert response.status_code == 400, response.content
-    assert list(ShearReading.objects.filter(stage=stage).order_by("id").values()) == before
+    assert (
+        list(ShearReading.objects.filter(stage=stage).order_by("traverse", "seq").values())
+        == before
+    )
     assert ReadingsChange.objects.filter(stage=stage).count() == changes
 
 

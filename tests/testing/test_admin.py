@@ -11,12 +11,14 @@ from testing.models import ComputationRun, StageResult
 
 
 def test_every_model_of_the_testing_app_is_registered() -> None:
+    """Except shear readings: the admin cannot show a model with a composite key (and a stage can
+    hold a million readings); they are read on the stage pages, through the API and the exports."""
     missing = [
         m.__name__
         for m in apps.get_app_config("testing").get_models()
         if m not in admin.site._registry and not m.__name__.startswith("Historical")
     ]
-    assert missing == []
+    assert missing == ["ShearReading"]
 
 
 @pytest.mark.django_db

@@ -41,6 +41,21 @@ class Apparatus(models.Model):
     beam_offset_force_n = models.FloatField(
         default=0.0, help_text="Net force from an unbalanced beam [N]."
     )
+    # Tolerances, as ± half-widths (each read as a rectangular distribution, u = a/√3). All three
+    # recorded: the normal stress at failure gets its expanded uncertainty; blank: it stays unknown.
+    mass_tolerance_pct = models.FloatField(
+        null=True,
+        blank=True,
+        help_text="Tolerance of each applied mass (direct, hanger, slotted weights) [± % of the mass].",
+    )
+    lever_ratio_tolerance = models.FloatField(
+        null=True, blank=True, help_text="Tolerance of the verified lever ratio [± –]."
+    )
+    box_dimension_tolerance_mm = models.FloatField(
+        null=True,
+        blank=True,
+        help_text="Tolerance of each box dimension (length, width or diameter) [± mm].",
+    )
     verified_on = models.DateField(
         null=True, blank=True, help_text="Date the lever ratio and masses were last verified."
     )
@@ -70,6 +85,15 @@ class Apparatus(models.Model):
             models.CheckConstraint(name="apparatus_lever_positive", condition=Q(lever_ratio__gt=0)),
             models.CheckConstraint(
                 name="apparatus_hanger_nonnegative", condition=Q(hanger_mass_kg__gte=0)
+            ),
+            models.CheckConstraint(
+                name="apparatus_tolerances_nonnegative",
+                condition=(Q(mass_tolerance_pct__isnull=True) | Q(mass_tolerance_pct__gte=0))
+                & (Q(lever_ratio_tolerance__isnull=True) | Q(lever_ratio_tolerance__gte=0))
+                & (
+                    Q(box_dimension_tolerance_mm__isnull=True)
+                    | Q(box_dimension_tolerance_mm__gte=0)
+                ),
             ),
             models.CheckConstraint(
                 name="apparatus_verification_dates",

@@ -613,6 +613,9 @@ def _logger_set(
         box_width_mm=_BOX_MM,
         lever_ratio=_LEVER_RATIO,
         hanger_mass_kg=_HANGER_MASS_KG,
+        mass_tolerance_pct=0.1,
+        lever_ratio_tolerance=0.02,
+        box_dimension_tolerance_mm=0.05,
         verified_on=(now - timedelta(days=200)).date(),
         verification_due_on=(now + timedelta(days=165)).date(),
     )

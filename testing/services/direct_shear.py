@@ -117,14 +117,17 @@ def failure_shear_stress_u_kpa(
     - F: the shear force at failure, τf·Af (area at the failure reading under the stage's area
       model);
     - L, W and the box shape: the test's nominal box dimensions;
-    - u(L) = u(W) = 0: the lab records no tolerance for the box dimensions, so that term is left
-      out of the budget rather than guessed (it is usually far smaller than the force term).
+    - u(L) = u(W) = a/√3 from the ± tolerance of the box dimensions on the test set's apparatus
+      record (``inputs.settings["box_tolerance_mm"]``); 0 when none is recorded, so that term is
+      left out of the budget rather than guessed (it is usually far smaller than the force term).
     The core computes τ = F/A on the nominal area; its relative uncertainty is applied to the
     stored τf, which on the corrected area is F/Af (∂τ/∂F = 1/Af).
     """
     certificate = inputs.settings.get("force_uncertainty")
     if certificate is None:
         return None
+    box_tolerance = inputs.settings.get("box_tolerance_mm")
+    u_box = analysis.standard_from_rectangular(box_tolerance) if box_tolerance else 0.0
     failure = failure or reduction.peak
     force_n = failure.shear_stress_kpa * float(reduction.area_mm2[failure.index]) / 1000.0
     if not force_n > 0.0:
@@ -135,13 +138,62 @@ def failure_shear_stress_u_kpa(
             certificate["expanded_n"], certificate["coverage_factor_k"]
         ),
         length_mm=box.length_mm,
-        u_length_mm=0.0,
+        u_length_mm=u_box,
         width_mm=box.width_mm,
-        u_width_mm=0.0,
+        u_width_mm=u_box,
         shape=box.shape,
         coverage_factor=2.0,  # the field promises k = 2, whatever k the certificate quotes
     )
     return _finite_or_none(u.expanded_uncertainty_kpa / u.value_kpa * failure.shear_stress_kpa)
+
+
+def failure_normal_stress_u_kpa(
+    inputs: StageInputs, box: analysis.BoxGeometry, failure: analysis.FailurePoint
+) -> float | None:
+    """Expanded uncertainty U (k = 2) of σn at failure [kPa], or None when the stage is loaded by a
+    frame or its apparatus record does not give the mass, lever-ratio and box tolerances.
+
+    Inputs used (``analysis.normal_stress_uncertainty``, standard uncertainties):
+    - u(m) = (tolerance % × m)/√3 for the direct mass, the hanger and the slotted weights, and
+      u(r) = tolerance/√3 for the lever ratio (each tolerance read as a rectangular distribution);
+    - u(L) = u(W) = tolerance/√3 for the box dimensions;
+    - the beam offset force is taken as exact.
+    The core gives each input's contribution on the nominal area A. At failure σn = N/Af, so the
+    mass and lever contributions scale by A/Af, and the area's relative contribution applies to the
+    stored σn at failure.
+    """
+    loading = inputs.settings.get("loading_uncertainty")
+    normal_force_n = float(inputs.settings["normal_force_n"])
+    if loading is None or not normal_force_n > 0.0:
+        return None
+    mass_pct = loading["mass_tolerance_pct"] / 100.0
+    u_box = analysis.standard_from_rectangular(loading["box_dimension_tolerance_mm"])
+
+    def u_mass(mass_kg: float) -> float:
+        return analysis.standard_from_rectangular(mass_pct * mass_kg)
+
+    u = analysis.normal_stress_uncertainty(
+        direct_mass_kg=loading["direct_mass_kg"],
+        u_direct_mass_kg=u_mass(loading["direct_mass_kg"]),
+        lever_ratio=loading["lever_ratio"],
+        u_lever_ratio=analysis.standard_from_rectangular(loading["lever_ratio_tolerance"]),
+        hanger_mass_kg=loading["hanger_mass_kg"],
+        u_hanger_mass_kg=u_mass(loading["hanger_mass_kg"]),
+        weights_mass_kg=loading["weights_mass_kg"],
+        u_weights_mass_kg=u_mass(loading["weights_mass_kg"]),
+        length_mm=box.length_mm,
+        u_length_mm=u_box,
+        width_mm=box.width_mm,
+        u_width_mm=u_box,
+        shape=box.shape,
+        coverage_factor=2.0,
+    )
+    sigma_f = failure.normal_stress_kpa
+    area_ratio = sigma_f * box.plan_area_mm2 / (normal_force_n * 1000.0)  # A/Af
+    relative_area = u.budget_kpa["area"] / u.value_kpa if u.value_kpa else 0.0
+    load_terms = [c * area_ratio for name, c in u.budget_kpa.items() if name != "area"]
+    combined = math.sqrt(sum(c * c for c in load_terms) + (sigma_f * relative_area) ** 2)
+    return _finite_or_none(2.0 * combined)
 
 
 def stage_result_store(
@@ -188,11 +240,7 @@ def stage_result_store(
         max_rate_mm_per_min=_finite_or_none(reduction.max_rate_mm_per_min),
         phase=context.details,
         shear_stress_u_kpa=failure_shear_stress_u_kpa(reduction, inputs, box, failure),
-        # σn: ``analysis.normal_stress_uncertainty`` needs the standard uncertainties of the
-        # direct, hanger and slotted masses, of the lever ratio and of the box dimensions (or of
-        # a load frame's stress). None of these is recorded anywhere (stage, apparatus or
-        # equipment register), so U(σn) stays unknown instead of an invented zero.
-        normal_stress_u_kpa=None,
+        normal_stress_u_kpa=failure_normal_stress_u_kpa(inputs, box, failure),
         flags=[_flag_dict(f) for f in (*context.flags, *reduction.flags)],
     )
 

@@ -109,6 +109,37 @@ def _force_uncertainty(stage: ShearStage) -> dict[str, float] | None:
     }
 
 
+def _loading_uncertainty(stage: ShearStage) -> dict[str, float] | None:
+    """What the normal stress's uncertainty is built from: the stage's masses and lever ratio and the
+    tolerances its test set's apparatus records (± half-widths). None when the stage is loaded by a
+    frame, or no apparatus record gives all three tolerances."""
+    apparatus = stage.test.apparatus_record
+    if stage.loading == NormalLoading.FRAME or apparatus is None:
+        return None
+    tolerances = {
+        "mass_tolerance_pct": apparatus.mass_tolerance_pct,
+        "lever_ratio_tolerance": apparatus.lever_ratio_tolerance,
+        "box_dimension_tolerance_mm": apparatus.box_dimension_tolerance_mm,
+    }
+    if any(value is None for value in tolerances.values()):
+        return None
+    return {
+        "direct_mass_kg": float(stage.direct_mass_kg or 0.0),
+        "hanger_mass_kg": float(stage.hanger_mass_kg or 0.0),
+        "weights_mass_kg": float(stage.weights_mass_kg or 0.0),
+        "lever_ratio": float(stage.lever_ratio or 1.0),
+        **{key: float(value) for key, value in tolerances.items() if value is not None},
+    }
+
+
+def _box_tolerance_mm(stage: ShearStage) -> float | None:
+    """± tolerance of each box dimension from the test set's apparatus record, if it gives one."""
+    apparatus = stage.test.apparatus_record
+    if apparatus is None or apparatus.box_dimension_tolerance_mm is None:
+        return None
+    return float(apparatus.box_dimension_tolerance_mm)
+
+
 def stage_inputs_load(stage: ShearStage) -> StageInputs:
     """Read a stage's readings (two queries) and settings into :class:`StageInputs`."""
     test = stage.test
@@ -140,6 +171,8 @@ def stage_inputs_load(stage: ShearStage) -> StageInputs:
         "calibration": _calibration_fingerprint(calibration),
         "calibration_record_id": stage.force_calibration_id,
         "force_uncertainty": _force_uncertainty(stage),
+        "box_tolerance_mm": _box_tolerance_mm(stage),
+        "loading_uncertainty": _loading_uncertainty(stage),
         "test_date": stage_test_date(stage).isoformat(),
         "specimen": {
             "height_mm": specimen.height_mm,

@@ -124,7 +124,7 @@ def test_stored_u_and_characteristic_equal_the_core_and_show_on_the_page(
     # A certificate without U, and a stage on its own ring factor: no uncertainty is made up.
     assert _latest(test, 2).shear_stress_u_kpa is None
     assert _latest(test, 3).shear_stress_u_kpa is None
-    # No uncertainty of the masses, lever ratio or box dimensions is recorded anywhere.
+    # The set has no apparatus record, so no mass, lever or box tolerances: U(σn) stays unknown.
     assert all(_latest(test, n).normal_stress_u_kpa is None for n in (1, 2, 3))
 
     envelope = EnvelopeResult.objects.filter(test=test, envelope_type="peak").latest("id")

@@ -102,3 +102,35 @@ def test_readings_changed_around_the_application_fail(issued_revision: ReportRev
     message = _verify_fails()
     assert f"stage {stage.stage_number} (stage id {stage.pk})" in message
     assert "changed outside Tauline" in message
+
+
+@pytest.mark.django_db
+def test_a_missing_or_disabled_guard_trigger_fails_the_check() -> None:
+    """Every guard trigger the migrations create is found; one dropped (or, on PostgreSQL,
+    disabled) is named. The change is made inside the test's transaction and rolled back."""
+    from labsite.dbguards import guard_trigger_problems
+    from reports import guards as report_guards
+    from testing import guards as testing_guards
+
+    expected = (report_guards.GUARD_TRIGGERS, testing_guards.GUARD_TRIGGERS)
+    assert guard_trigger_problems(*expected) == []
+    assert "database guard triggers in place" in _verify()[0]
+    with connection.cursor() as cursor:
+        if connection.vendor == "postgresql":
+            cursor.execute(
+                "ALTER TABLE testing_shearreading DISABLE TRIGGER testing_shear_reading_stage_insert"
+            )
+            cursor.execute("DROP TRIGGER reports_audit_not_deleted ON reports_auditevent")
+            dropped = "reports_audit_not_deleted on reports_auditevent is missing"
+            disabled = "testing_shear_reading_stage_insert on testing_shearreading is disabled"
+        else:
+            cursor.execute("DROP TRIGGER testing_shear_reading_stage_insert")
+            cursor.execute("DROP TRIGGER reports_audit_append_only")
+            dropped = "reports_audit_append_only on reports_auditevent is missing"
+            disabled = "testing_shear_reading_stage_insert on testing_shearreading is missing"
+    problems = guard_trigger_problems(*expected)
+    assert [p.removeprefix("database guard trigger ") for p in problems] == sorted(
+        [dropped, disabled], key=lambda line: not line.startswith("reports")
+    )
+    message = _verify_fails()
+    assert dropped in message and disabled in message

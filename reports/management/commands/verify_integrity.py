@@ -13,7 +13,8 @@ For each revision that was ever issued (current, superseded or withdrawn after i
 
 And for every stage: its readings-change audit rows link from no readings to the last change,
 and the readings stored now hash to what the last change left (nothing was changed around the
-application).
+application). And the database's guard triggers (``reports.guards``, ``testing.guards``) are all
+present and enabled.
 
 Run it after a restore (``scripts/restore-drill.sh`` does) and on a schedule.
 """
@@ -27,6 +28,8 @@ from typing import Any
 
 from django.core.management.base import BaseCommand, CommandError, CommandParser
 
+from labsite.dbguards import guard_trigger_problems
+from reports import guards as report_guards
 from reports import signing
 from reports.models import (
     AuditEvent,
@@ -38,6 +41,7 @@ from reports.models import (
 )
 from reports.rendering.context import content_sha256
 from reports.verification import revision_signature_check
+from testing import guards as testing_guards
 from testing.models import ShearStage
 from testing.services.readings_audit import readings_trail_problems
 
@@ -215,6 +219,10 @@ class Command(BaseCommand):
             problems += _audit_problems(revision, trail)
             failures += [f"{_name(revision)}: {problem}" for problem in problems]
 
+        failures += guard_trigger_problems(
+            report_guards.GUARD_TRIGGERS, testing_guards.GUARD_TRIGGERS
+        )
+
         stages = 0
         for stage_id, test_reference, stage_number in ShearStage.objects.order_by("id").values_list(
             "id", "test__reference", "stage_number"
@@ -236,5 +244,5 @@ class Command(BaseCommand):
             f"ok: {checked} issued revision(s) of {len(revisions)} checked (PDF sha256, "
             f"{'signature, ' if check_signature else ''}sign-offs, audit trail); "
             f"{sum(len(v) for v in events.values())} audit events read; readings of {stages} "
-            "stage(s) match their audit trail."
+            "stage(s) match their audit trail; database guard triggers in place."
         )

@@ -508,8 +508,8 @@ def _clay_set(*, project: Project, sample: Sample, user: User, now: datetime) ->
             number=number,
             sigma=sigma,
             dry_density=1.52 - 0.004 * number,
-            water_content=0.29,
-            final_ratio=1.27,
+            water_content=0.27,
+            final_ratio=1.23,
             specimen={
                 "depth_top_m": sample.depth_top_m + Decimal("0.05") * number,
                 "preparation": "undisturbed",
@@ -684,7 +684,7 @@ def _logger_set(
             sigma=sigma,
             dry_density=1.60 - 0.004 * number,
             water_content=0.24,
-            final_ratio=1.22,
+            final_ratio=1.20,
             specimen={
                 "depth_top_m": sample.depth_top_m + Decimal("0.05") * number,
                 "preparation": "undisturbed",

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from io import StringIO
 from typing import Any
 
@@ -22,6 +23,7 @@ from testing.models import (
     ShearReading,
     ShearStage,
     Specimen,
+    StageResult,
 )
 
 COUNTED = (
@@ -78,6 +80,23 @@ def test_demo_covers_the_lab_workload() -> None:
     ):
         assert stage.shear >= 100
         assert stage.cons >= 10
+
+
+@pytest.mark.django_db
+def test_demo_specimens_are_physically_possible(
+    django_capture_on_commit_callbacks: Callable[..., Any],
+) -> None:
+    """Degree of saturation S = w·Gs/e cannot exceed 100 % (phase relations, common practice):
+    the invented masses, densities and particle densities must agree, before and after shearing."""
+    with django_capture_on_commit_callbacks(execute=True):  # the reductions loaddemo requests
+        call_command("loaddemo", stdout=StringIO())
+    results = StageResult.objects.select_related("stage__test")
+    assert results.count() >= 9
+    for result in results:
+        for state in ("initial", "final"):
+            saturation = result.phase[state]["saturation_pct"]
+            assert 0.0 < saturation <= 100.0, (result.stage, state, saturation)
+        assert "SATURATION_OVER_100" not in {f["code"] for f in result.flags}, result.stage
 
 
 @pytest.mark.django_db

@@ -9,6 +9,7 @@ set up without a calibration record.
 from __future__ import annotations
 
 from django.conf import settings
+from django.core.validators import MinValueValidator
 from django.db import models
 from django.db.models import F, Q
 
@@ -46,14 +47,19 @@ class Apparatus(models.Model):
     mass_tolerance_pct = models.FloatField(
         null=True,
         blank=True,
+        validators=[MinValueValidator(0.0)],
         help_text="Tolerance of each applied mass (direct, hanger, slotted weights) [± % of the mass].",
     )
     lever_ratio_tolerance = models.FloatField(
-        null=True, blank=True, help_text="Tolerance of the verified lever ratio [± –]."
+        null=True,
+        blank=True,
+        validators=[MinValueValidator(0.0)],
+        help_text="Tolerance of the verified lever ratio [± –].",
     )
     box_dimension_tolerance_mm = models.FloatField(
         null=True,
         blank=True,
+        validators=[MinValueValidator(0.0)],
         help_text="Tolerance of each box dimension (length, width or diameter) [± mm].",
     )
     verified_on = models.DateField(

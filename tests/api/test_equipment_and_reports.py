@@ -42,6 +42,29 @@ def test_the_lab_manager_adds_a_calibration_through_the_service(plain_world: Wor
 
 
 @pytest.mark.django_db
+def test_apparatus_tolerances_go_in_and_out_and_a_negative_one_is_refused(
+    plain_world: World,
+) -> None:
+    manager = token_client(plain_world.cast.manager)
+    url = reverse("api:apparatus-list")
+    machine = {
+        "reference": "SB-11", "box_shape": "square", "box_length_mm": 60.0, "box_width_mm": 60.0,
+        "lever_ratio": 10.0, "hanger_mass_kg": 1.0, "mass_tolerance_pct": 0.1,
+        "lever_ratio_tolerance": 0.02, "box_dimension_tolerance_mm": 0.05,
+    }  # fmt: skip
+    response = manager.post(url, machine, format="json")
+    assert response.status_code == 201, response.content
+    stored = manager.get(f"{url}{response.json()['id']}/").json()
+    assert {k: stored[k] for k in machine} == machine
+    negative = {**machine, "reference": "SB-12", "lever_ratio_tolerance": -0.02}
+    response = manager.post(url, negative, format="json")
+    assert response.status_code == 400, response.content
+    assert "lever_ratio_tolerance" in response.content.decode()
+    blank = {**machine, "reference": "SB-13", "mass_tolerance_pct": None}
+    assert manager.post(url, blank, format="json").status_code == 201
+
+
+@pytest.mark.django_db
 def test_unusable_certificates_are_refused_with_the_service_message(plain_world: World) -> None:
     device = plain_world.a.force_device
     manager = token_client(plain_world.cast.manager)

@@ -73,8 +73,7 @@ def phase_setup(copies: int) -> dict[str, Any]:
         stage._state.adding = True
         stage.save()
         for row in shear:
-            row.pk = None
-            row.stage = stage
+            row.stage = stage  # the key is (stage, traverse, seq): a new stage is a new row
         ShearReading.objects.bulk_create(shear)
         for c in consolidation:
             c.pk = None

@@ -7,8 +7,9 @@ record the audit digest, commit (which is when deferred checks run). Floor, in t
 committed. Each import goes into a fresh stage (so it is not a duplicate of the last); the reduction
 it requests is not run (no broker here). Best of ``REPEATS`` for each.
 
-Targets: ratio ≤ 2 and import < 10 s. Always works in a scratch database ``tauline_bench`` on
-127.0.0.1:5432 (created and dropped), because committed audit rows cannot be deleted afterwards.
+Targets: ratio ≤ 2 and import < 10 s. Always works in a scratch database
+``tauline_bench_import_<random>`` on 127.0.0.1:5432 (created and dropped), because committed audit
+rows cannot be deleted afterwards.
 
     .venv/bin/python benchmarks/bench_import.py [--rows 1000000]
 """
@@ -21,6 +22,7 @@ import subprocess
 import sys
 import tempfile
 import time
+import uuid
 from pathlib import Path
 from typing import Any
 
@@ -30,7 +32,7 @@ sys.path.insert(0, str(ROOT))
 RATIO_TARGET = 2.0
 ABSOLUTE_TARGET_S = 10.0
 REPEATS = 2
-SCRATCH_DB = "tauline_bench"
+SCRATCH_DB = f"tauline_bench_import_{uuid.uuid4().hex[:8]}"  # two runs at once do not collide
 
 
 def _write_file(path: Path, rows: int) -> None:
@@ -65,7 +67,6 @@ def main() -> int:
         args.rows = 2_000
 
     pg = ["-h", "127.0.0.1", "-U", "postgres"]
-    subprocess.run(["dropdb", "--if-exists", *pg, SCRATCH_DB], check=True)
     subprocess.run(["createdb", *pg, SCRATCH_DB], check=True)
     os.environ["DATABASE_URL"] = f"postgres://postgres@127.0.0.1:5432/{SCRATCH_DB}"
     os.environ.pop("REDIS_URL", None)
@@ -159,12 +160,12 @@ def _run(rows: int) -> int:
         assert record.shear_rows == rows
         with connection.cursor() as cursor:
             cursor.execute(
-                "SELECT count(*) FROM testing_shearreading WHERE stage_id = %s", [stage.pk]
+                "SELECT sum(count) FROM testing_shearreadingblock WHERE stage_id = %s", [stage.pk]
             )
             assert cursor.fetchone()[0] == rows
             # Keep the scratch table small between runs (the audit rows stay; they cannot go).
-            cursor.execute("DELETE FROM testing_shearreading WHERE stage_id = %s", [stage.pk])
-            cursor.execute("VACUUM testing_shearreading")
+            cursor.execute("DELETE FROM testing_shearreadingblock WHERE stage_id = %s", [stage.pk])
+            cursor.execute("VACUUM testing_shearreadingblock")
         return elapsed
 
     def run_floor() -> float:

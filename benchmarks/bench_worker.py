@@ -39,15 +39,18 @@ TARGET_RATIO = 3.0
 
 def phase_setup(copies: int) -> dict[str, Any]:
     from django.contrib.auth.models import User
+    from django.db import transaction
 
-    from testing.models import ConsolidationReading, ShearReading, ShearStage
+    from testing.models import ConsolidationReading, ShearStage
+    from testing.selectors_readings import shear_columns
     from testing.services import demo
+    from testing.services.readings_store import write_shear_columns
 
     demo.load_demo()
     source = ShearStage.objects.filter(results__isnull=False).order_by("id").first()
     assert source is not None, "the demo has no reduced stage"
     technician = User.objects.get(username="technician")
-    shear = list(ShearReading.objects.filter(stage=source).order_by("traverse", "seq"))
+    shear = shear_columns(source.pk)
     consolidation = list(ConsolidationReading.objects.filter(stage=source))
     ids = []
     for i in range(copies):
@@ -72,9 +75,8 @@ def phase_setup(copies: int) -> dict[str, Any]:
         stage.specimen = specimen
         stage._state.adding = True
         stage.save()
-        for row in shear:
-            row.stage = stage  # the key is (stage, traverse, seq): a new stage is a new row
-        ShearReading.objects.bulk_create(shear)
+        with transaction.atomic():  # the copy's readings, written as column blocks
+            write_shear_columns(stage.pk, shear)
         for c in consolidation:
             c.pk = None
             c.stage = stage

@@ -1,5 +1,5 @@
 """Are the database's guard triggers in place? Each app lists the triggers its migrations create
-(``testing.guards``, ``reports.guards``); this reads what the database has.
+(``reports.guards``); this reads what the database has.
 
 A trigger can go without anyone changing the code: ``ALTER TABLE … DISABLE TRIGGER`` (or the
 replica role) on PostgreSQL, a restore that skipped them, or on SQLite a migration that rebuilt the

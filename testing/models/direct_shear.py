@@ -4,7 +4,9 @@ from __future__ import annotations
 
 from django.conf import settings
 from django.db import models
-from django.db.models import Q
+from django.db.models import F, Q
+from django.db.models.functions import Length
+from django.db.models.lookups import Exact
 
 from testing.models.audit import AuditedHistory
 
@@ -328,39 +330,61 @@ class ConsolidationReading(models.Model):
         return f"{self.elapsed_min:g} min: {self.settlement_mm:.3f} mm"
 
 
-class ShearReading(models.Model):
-    """One shear reading. Keyed by (stage, traverse, reading number) with no surrogate id, and the
-    stage reference is checked once per statement by database triggers (migration 0009) rather
-    than row by row by a foreign-key constraint: a million-reading import then maintains one index
-    and makes one stage lookup instead of a sequence, two indexes and a million lookups at commit."""
+class ShearReadingBlock(models.Model):
+    """A run of consecutive shear readings of one traverse, stored column by column.
 
-    pk = models.CompositePrimaryKey("stage", "traverse", "seq")
+    Readings ``first_seq`` … ``first_seq + count − 1`` of the traverse (reading numbers count from 1
+    in time order). Each column holds ``count`` little-endian IEEE-754 doubles: elapsed time [min],
+    horizontal displacement [mm], vertical displacement (dilation upward positive) [mm] and the
+    force device reading [div or N, see the stage]. A logger's million readings are then a few
+    dozen rows: no per-reading index or key check to maintain, and a stage's readings come back
+    in one query. Read them through :mod:`testing.selectors_readings`; write them through
+    :mod:`testing.services.readings_store`, which checks every value first."""
+
+    # No index of its own: the unique (stage, traverse, first_seq) index serves lookups by stage.
     stage = models.ForeignKey(
-        ShearStage,
-        on_delete=models.CASCADE,
-        related_name="shear_readings",
-        db_index=False,
-        db_constraint=False,
+        ShearStage, on_delete=models.CASCADE, related_name="shear_blocks", db_index=False
     )
     traverse = models.PositiveSmallIntegerField(default=1)
-    seq = models.PositiveIntegerField(help_text="Reading number within the traverse.")
-    elapsed_min = models.FloatField(help_text="Time since shearing started [min].")
-    horizontal_mm = models.FloatField(help_text="Relative horizontal displacement [mm].")
-    vertical_mm = models.FloatField(
-        help_text="Vertical displacement, dilation (upward) positive [mm]."
+    first_seq = models.PositiveIntegerField(
+        help_text="Reading number (within the traverse) of the block's first reading."
     )
-    force_reading = models.FloatField(help_text="Force device reading [div or N, see the stage].")
+    count = models.PositiveIntegerField(help_text="Readings in the block.")
+    elapsed_min = models.BinaryField(help_text="Time since shearing started [min], float64 LE.")
+    horizontal_mm = models.BinaryField(
+        help_text="Relative horizontal displacement [mm], float64 LE."
+    )
+    vertical_mm = models.BinaryField(
+        help_text="Vertical displacement, dilation (upward) positive [mm], float64 LE."
+    )
+    force_reading = models.BinaryField(
+        help_text="Force device reading [div or N, see the stage], float64 LE."
+    )
+
+    COLUMNS = ("elapsed_min", "horizontal_mm", "vertical_mm", "force_reading")
 
     class Meta:
-        ordering = ["stage", "traverse", "seq"]
+        ordering = ["stage", "traverse", "first_seq"]
         constraints = [
-            models.CheckConstraint(
-                name="shear_reading_time_nonnegative", condition=Q(elapsed_min__gte=0)
+            models.UniqueConstraint(
+                fields=["stage", "traverse", "first_seq"], name="shear_block_unique"
             ),
             models.CheckConstraint(
-                name="shear_reading_traverse_positive", condition=Q(traverse__gte=1)
+                name="shear_block_traverse_positive", condition=Q(traverse__gte=1)
+            ),
+            models.CheckConstraint(
+                name="shear_block_first_seq_positive", condition=Q(first_seq__gte=1)
+            ),
+            models.CheckConstraint(name="shear_block_not_empty", condition=Q(count__gte=1)),
+            *(
+                models.CheckConstraint(
+                    name=f"shear_block_{column}_length",
+                    condition=Exact(Length(column), F("count") * 8),
+                )
+                for column in ("elapsed_min", "horizontal_mm", "vertical_mm", "force_reading")
             ),
         ]
 
     def __str__(self) -> str:
-        return f"traverse {self.traverse} #{self.seq}: x {self.horizontal_mm:.3f} mm, F {self.force_reading:g}"
+        last = self.first_seq + self.count - 1
+        return f"traverse {self.traverse} readings {self.first_seq}–{last}"

@@ -21,12 +21,12 @@ from testing.models import (
     Organisation,
     Project,
     Sample,
-    ShearReading,
     ShearStage,
     Specimen,
     StageResult,
 )
 from testing.models.audit import acting
+from testing.selectors_readings import has_shear_readings
 from testing.services.errors import NotAllowed, ServiceError
 
 # Inputs of the stage reduction: changing them once there are results needs a reason.
@@ -104,7 +104,7 @@ def _copy_back(target: models.Model, source: models.Model, names: set[str]) -> N
 
 def _request_reduction(stage: ShearStage, *, user: User, reason: str) -> None:
     """Reduce the stage again when it has something to reduce."""
-    if ShearReading.objects.filter(stage=stage).exists():
+    if has_shear_readings(stage.pk):
         from testing.services.computation import stage_reduction_request
 
         stage_reduction_request(stage=stage, user=user, reason=reason)

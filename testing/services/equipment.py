@@ -9,7 +9,6 @@ from typing import Any
 from django.contrib.auth.models import User
 from django.core.exceptions import ValidationError
 from django.db import transaction
-from django.db.models import Max, Min
 
 from testing import access
 from testing.analysis import (
@@ -25,10 +24,10 @@ from testing.models import (
     DisplacementGauge,
     ForceDevice,
     ForceUnit,
-    ShearReading,
     ShearStage,
 )
 from testing.models.audit import acting
+from testing.selectors_readings import shear_force_span
 from testing.services.errors import NotAllowed, ServiceError
 
 
@@ -191,10 +190,8 @@ def stage_calibration_flags(stage: ShearStage, test_date: dt.date | None) -> lis
             )
             if flag is not None:
                 flags.append(flag)
-        span = ShearReading.objects.filter(stage=stage).aggregate(
-            low=Min("force_reading"), high=Max("force_reading")
-        )
-        low, high = span["low"], span["high"]
+        span = shear_force_span(stage.pk)
+        low, high = span if span is not None else (None, None)
         if (
             low is not None
             and high is not None

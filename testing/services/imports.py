@@ -4,7 +4,7 @@ stage reduction in that same transaction.
 An upload goes: size cap (before reading a byte more than the cap) → sha256 → duplicate check
 (same file, same stage → nothing added, the earlier import named) → the original stored under a
 generated name → parse and check every row (``testing.importers``) → all rows written in one
-transaction (COPY on PostgreSQL, batched inserts elsewhere) → reduction requested. Any bad row
+transaction (as column blocks: a million readings are 20 inserts) → reduction requested. Any bad row
 saves nothing and lists every bad row; a database failure part-way saves nothing and marks the
 import failed with the reason, so a retry starts clean.
 """

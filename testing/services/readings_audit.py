@@ -1,6 +1,7 @@
 """The audit row for a bulk change of a stage's readings: counts and digests before and after.
 
-Digest of a stage's readings (so anyone can recompute it from the tables):
+Digest of a stage's readings (so anyone can recompute it from the tables; shear readings are
+stored in column blocks, reading ``first_seq + i`` of a block being its columns' ``i``-th values):
 
 - consolidation: the rows ordered by ``elapsed_min``, each as (elapsed_min, settlement_mm);
 - shear: the rows ordered by (traverse, seq), each as (traverse, seq, elapsed_min,
@@ -28,9 +29,9 @@ from testing.models import (
     ReadingImport,
     ReadingsChange,
     ReadingsSource,
-    ShearReading,
     ShearStage,
 )
+from testing.selectors_readings import shear_columns
 
 
 @dataclass(frozen=True)
@@ -98,14 +99,14 @@ def readings_state(stage_id: int) -> ReadingsState:
         .order_by("elapsed_min")
         .values_list("elapsed_min", "settlement_mm")
     )
-    shear = list(
-        ShearReading.objects.filter(stage_id=stage_id)
-        .order_by("traverse", "seq")
-        .values_list(
-            "traverse", "seq", "elapsed_min", "horizontal_mm", "vertical_mm", "force_reading"
-        )
+    c = _columns(consolidation, 2)
+    s = shear_columns(stage_id)
+    return ReadingsState(
+        consolidation=consolidation_digest(c[0], c[1]),
+        shear=shear_digest(
+            s.traverse, s.seq, s.elapsed_min, s.horizontal_mm, s.vertical_mm, s.force_reading
+        ),
     )
-    return rows_state(consolidation, shear)
 
 
 def rows_state(

@@ -1,22 +1,24 @@
 """Writing parsed readings: the phases present replace the stage's readings of that phase, inside
-the caller's transaction. Shear readings go by binary COPY on PostgreSQL (built column-wise with
-numpy) and by batched inserts elsewhere, batch by batch so a failure part-way rolls back whole.
+the caller's transaction, so a failure part-way rolls back whole. Shear readings go in as column
+blocks (:class:`~testing.models.ShearReadingBlock`), block by block.
 """
 
 from __future__ import annotations
 
-import struct
-from collections.abc import Callable, Iterator
-from contextlib import contextmanager
+from collections.abc import Callable
+from itertools import pairwise
+from typing import Any
 
 import numpy as np
-from django.db import DatabaseError, connection
+from django.db import IntegrityError, connection
 from django.db.models import Field
 
 from testing.importers.rows import ParsedReadings
-from testing.models import ConsolidationReading, ShearReading, ShearStage
+from testing.models import ConsolidationReading, ShearReadingBlock, ShearStage
+from testing.selectors_readings import ShearColumns
 
-BATCH_ROWS = 5000  # rows per bulk_create batch / COPY chunk
+BATCH_ROWS = 5000  # consolidation rows per bulk_create batch
+BLOCK_READINGS = 50_000  # shear readings per block row (400 kB per column)
 
 
 def replace_readings(
@@ -41,124 +43,113 @@ def replace_readings(
             batch_size=BATCH_ROWS,
         )
     if parsed.shear_elapsed_min.size:
-        old = ShearReading.objects.filter(stage=stage)
+        old = ShearReadingBlock.objects.filter(stage=stage)
         if shear_traverses_only:
             old = old.filter(traverse__in=sorted({int(t) for t in parsed.shear_traverse}))
-        replaced += old.delete()[0]
+        replaced += int(sum(old.values_list("count", flat=True)))
+        old.delete()
         write_shear_rows(stage.pk, parsed)
     return replaced
 
 
-ShearWriter = Callable[[ParsedReadings, int, int], None]
+ShearWriter = Callable[[ShearColumns, int, int], None]
 
 
 def write_shear_rows(stage_id: int, parsed: ParsedReadings) -> None:
-    """Write every shear reading, batch by batch, inside the caller's transaction."""
-    n = int(parsed.shear_elapsed_min.size)
-    with _shear_writer(stage_id) as write:
-        for start in range(0, n, BATCH_ROWS):
-            _write_shear_batch(write, parsed, start, min(n, start + BATCH_ROWS))
-
-
-def _write_shear_batch(write: ShearWriter, parsed: ParsedReadings, start: int, stop: int) -> None:
-    """One batch (a seam for tests that make the database fail part-way)."""
-    write(parsed, start, stop)
-
-
-@contextmanager
-def _shear_writer(stage_id: int) -> Iterator[ShearWriter]:
-    if connection.vendor == "postgresql":
-        with _copy_writer(stage_id) as write:
-            yield write
-        return
-
-    def bulk(parsed: ParsedReadings, start: int, stop: int) -> None:
-        ShearReading.objects.bulk_create(
-            [
-                ShearReading(
-                    stage_id=stage_id,
-                    traverse=int(parsed.shear_traverse[k]),
-                    seq=int(parsed.shear_seq[k]),
-                    elapsed_min=float(parsed.shear_elapsed_min[k]),
-                    horizontal_mm=float(parsed.shear_horizontal_mm[k]),
-                    vertical_mm=float(parsed.shear_vertical_mm[k]),
-                    force_reading=float(parsed.shear_force[k]),
-                )
-                for k in range(start, stop)
-            ]
-        )
-
-    yield bulk
-
-
-# PostgreSQL binary COPY: 11-byte signature, flags, header-extension length; rows; -1 trailer.
-_PGCOPY_HEADER = b"PGCOPY\n\xff\r\n\x00" + struct.pack(">ii", 0, 0)
-_PGCOPY_TRAILER = struct.pack(">h", -1)
-_ROW_DTYPE = np.dtype(
-    [
-        ("n", ">i2"),
-        ("l_stage", ">i4"), ("stage", ">i8"),
-        ("l_traverse", ">i4"), ("traverse", ">i2"),
-        ("l_seq", ">i4"), ("seq", ">i4"),
-        ("l_t", ">i4"), ("t", ">f8"),
-        ("l_h", ">i4"), ("h", ">f8"),
-        ("l_v", ">i4"), ("v", ">f8"),
-        ("l_f", ">i4"), ("f", ">f8"),
-    ]
-)  # fmt: skip
-_SHEAR_COLUMNS = (
-    ("stage", "bigint"),
-    ("traverse", "smallint"),
-    ("seq", "integer"),
-    ("elapsed_min", "double precision"),
-    ("horizontal_mm", "double precision"),
-    ("vertical_mm", "double precision"),
-    ("force_reading", "double precision"),
-)
-
-
-def _binary_rows(stage_id: int, parsed: ParsedReadings, start: int, stop: int) -> bytes:
-    """Rows in PostgreSQL's binary COPY format, built column-wise with numpy (no Python loop)."""
-    rows = np.empty(stop - start, dtype=_ROW_DTYPE)
-    rows["n"] = 7
-    rows["l_stage"], rows["stage"] = 8, stage_id
-    rows["l_traverse"], rows["traverse"] = 2, parsed.shear_traverse[start:stop]
-    rows["l_seq"], rows["seq"] = 4, parsed.shear_seq[start:stop]
-    for key, values in (
-        ("t", parsed.shear_elapsed_min),
-        ("h", parsed.shear_horizontal_mm),
-        ("v", parsed.shear_vertical_mm),
-        ("f", parsed.shear_force),
-    ):
-        rows["l_" + key], rows[key] = 8, values[start:stop]
-    return rows.tobytes()
-
-
-@contextmanager
-def _copy_writer(stage_id: int) -> Iterator[ShearWriter]:
-    meta = ShearReading._meta
-    columns = []
-    for name, expected in _SHEAR_COLUMNS:
-        f = meta.get_field(name)
-        assert isinstance(f, Field)
-        if f.db_type(connection) != expected:  # the binary layout above depends on these types
-            raise DatabaseError(f"Column {name} is {f.db_type(connection)}, expected {expected}")
-        columns.append(connection.ops.quote_name(f.column))
-    sql = (
-        f"COPY {connection.ops.quote_name(meta.db_table)} ({', '.join(columns)}) "
-        "FROM STDIN (FORMAT BINARY)"
+    """Write the parsed shear readings as column blocks, inside the caller's transaction."""
+    write_shear_columns(
+        stage_id,
+        ShearColumns(
+            traverse=parsed.shear_traverse,
+            seq=parsed.shear_seq,
+            elapsed_min=parsed.shear_elapsed_min,
+            horizontal_mm=parsed.shear_horizontal_mm,
+            vertical_mm=parsed.shear_vertical_mm,
+            force_reading=parsed.shear_force,
+        ),
     )
-    # The raw driver's COPY bypasses Django's cursor wrapper, so its errors are translated here:
-    # a refused row (a stage that does not exist, a repeated reading number) is an IntegrityError.
-    with (
-        connection.wrap_database_errors,
-        connection.cursor() as cursor,
-        cursor.cursor.copy(sql) as copy,
-    ):
-        copy.write(_PGCOPY_HEADER)
 
-        def write(parsed: ParsedReadings, start: int, stop: int) -> None:
-            copy.write(_binary_rows(stage_id, parsed, start, stop))
 
-        yield write
-        copy.write(_PGCOPY_TRAILER)
+def write_shear_columns(stage_id: int, columns: ShearColumns) -> None:
+    """Write readings as column blocks, inside the caller's transaction.
+
+    Readings are put in (traverse, reading number) order; each run of consecutive reading numbers
+    of one traverse is cut into blocks of at most ``BLOCK_READINGS``, one row each, so a million
+    readings are a few dozen inserts. A reading number given twice in a traverse is refused
+    (``IntegrityError``, nothing written by this call)."""
+    tr, sq = np.asarray(columns.traverse, np.int64), np.asarray(columns.seq, np.int64)
+    if tr.size == 0:
+        return
+    if ((tr < 1) | (sq < 1)).any():
+        raise IntegrityError("traverse and reading numbers count from 1")
+    d_tr, d_sq = np.diff(tr), np.diff(sq)
+    if not ((d_tr > 0) | ((d_tr == 0) & (d_sq > 0))).all():
+        order = np.lexsort((sq, tr))
+        columns = ShearColumns(*(np.asarray(c)[order] for c in _column_tuple(columns)))
+        tr, sq = tr[order], sq[order]
+        d_tr, d_sq = np.diff(tr), np.diff(sq)
+    repeated = np.flatnonzero((d_tr == 0) & (d_sq == 0))
+    if repeated.size:
+        k = int(repeated[0]) + 1
+        raise IntegrityError(f"reading {int(sq[k])} of traverse {int(tr[k])} is given twice")
+    cuts = [0, *(int(k) + 1 for k in np.flatnonzero((d_tr != 0) | (d_sq != 1))), int(tr.size)]
+    write = _insert_block(stage_id)
+    for run_start, run_stop in pairwise(cuts):
+        for start in range(run_start, run_stop, BLOCK_READINGS):
+            _write_shear_batch(write, columns, start, min(run_stop, start + BLOCK_READINGS))
+
+
+def _column_tuple(c: ShearColumns) -> tuple[np.ndarray, ...]:
+    return (c.traverse, c.seq, c.elapsed_min, c.horizontal_mm, c.vertical_mm, c.force_reading)
+
+
+def _write_shear_batch(write: ShearWriter, columns: ShearColumns, start: int, stop: int) -> None:
+    """One block (a seam for tests that make the database fail part-way)."""
+    write(columns, start, stop)
+
+
+def _insert_block(stage_id: int) -> ShearWriter:
+    """One INSERT per block. On PostgreSQL through a server-side-binding cursor, so the packed
+    columns travel as binary parameters (Django's client-side binding would spell each 400 kB
+    column out as hex inside the SQL text, about 7 times slower)."""
+    meta = ShearReadingBlock._meta
+    names = ["stage_id", "traverse", "first_seq", "count", *ShearReadingBlock.COLUMNS]
+    quoted = []
+    for name in names:
+        field = meta.get_field(name)
+        assert isinstance(field, Field) and field.column
+        quoted.append(connection.ops.quote_name(field.column))
+    sql = (
+        f"INSERT INTO {connection.ops.quote_name(meta.db_table)} ({', '.join(quoted)}) "
+        f"VALUES ({', '.join(['%s'] * len(names))})"
+    )
+
+    def values(columns: ShearColumns, start: int, stop: int) -> list[Any]:
+        return [
+            stage_id,
+            int(columns.traverse[start]),
+            int(columns.seq[start]),
+            stop - start,
+            *(encode_column(getattr(columns, n)[start:stop]) for n in ShearReadingBlock.COLUMNS),
+        ]
+
+    if connection.vendor == "postgresql":
+        import psycopg
+
+        def write_pg(columns: ShearColumns, start: int, stop: int) -> None:
+            connection.ensure_connection()
+            with connection.wrap_database_errors, psycopg.Cursor(connection.connection) as cursor:
+                cursor.execute(sql, values(columns, start, stop))
+
+        return write_pg
+
+    def write(columns: ShearColumns, start: int, stop: int) -> None:
+        with connection.cursor() as cursor:
+            cursor.execute(sql, values(columns, start, stop))
+
+    return write
+
+
+def encode_column(values: np.ndarray) -> bytes:
+    """Values as little-endian IEEE-754 doubles (the block column format); −0.0 kept as 0.0."""
+    return (np.asarray(values, dtype=np.float64) + 0.0).astype("<f8").tobytes()

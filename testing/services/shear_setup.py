@@ -5,6 +5,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 from typing import Any
 
+import numpy as np
 from django.contrib.auth.models import User
 from django.db import transaction
 
@@ -13,14 +14,16 @@ from testing.models import (
     ConsolidationReading,
     DirectShearTest,
     Project,
-    ShearReading,
+    ShearReadingBlock,
     ShearStage,
     Specimen,
 )
 from testing.models.audit import ReadingsSource, acting
 from testing.models.direct_shear import DEFAULT_EDITIONS, MethodProfile
+from testing.selectors_readings import ShearColumns
 from testing.services.errors import NotAllowed, ServiceError
 from testing.services.readings_audit import readings_change_record, readings_state, rows_state
+from testing.services.readings_store import write_shear_columns
 
 
 def _require_technician(user: User) -> None:
@@ -84,7 +87,7 @@ def stage_readings_store(
     with transaction.atomic():
         before = readings_state(stage.pk)
         ConsolidationReading.objects.filter(stage=stage).delete()
-        ShearReading.objects.filter(stage=stage).delete()
+        ShearReadingBlock.objects.filter(stage=stage).delete()
         ConsolidationReading.objects.bulk_create(
             [
                 ConsolidationReading(stage=stage, elapsed_min=t, settlement_mm=s)
@@ -92,21 +95,16 @@ def stage_readings_store(
             ],
             batch_size=2000,
         )
-        ShearReading.objects.bulk_create(
-            [
-                ShearReading(
-                    stage=stage,
-                    traverse=tr,
-                    seq=seq,
-                    elapsed_min=t,
-                    horizontal_mm=x,
-                    vertical_mm=y,
-                    force_reading=f,
-                )
-                for tr, seq, t, x, y, f in shear
-            ],
-            batch_size=2000,
-        )
+        if shear:
+            table = np.asarray(shear, dtype=np.float64).reshape(len(shear), 6)
+            write_shear_columns(
+                stage.pk,
+                ShearColumns(
+                    table[:, 0].astype(np.int64),
+                    table[:, 1].astype(np.int64),
+                    *(table[:, k] for k in range(2, 6)),
+                ),
+            )
         readings_change_record(
             stage=stage,
             user=user,

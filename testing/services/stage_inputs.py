@@ -22,10 +22,10 @@ from testing.models import (
     ConsolidationReading,
     DirectShearTest,
     NormalLoading,
-    ShearReading,
     ShearStage,
 )
 from testing.models.direct_shear import AreaModel, BoxShape
+from testing.selectors_readings import shear_columns
 from testing.services.equipment import stage_force_calibration
 
 Calibration = analysis.LinearCalibration | analysis.PolynomialCalibration
@@ -146,11 +146,9 @@ def stage_inputs_load(stage: ShearStage) -> StageInputs:
     specimen = stage.specimen
     box = box_geometry(test)
     calibration = stage_force_calibration(stage)
-    rows = np.array(
-        ShearReading.objects.filter(stage=stage)
-        .order_by("traverse", "seq")
-        .values_list("elapsed_min", "horizontal_mm", "vertical_mm", "force_reading"),
-        dtype=np.float64,
+    shear = shear_columns(stage.pk)
+    rows = np.column_stack(
+        (shear.elapsed_min, shear.horizontal_mm, shear.vertical_mm, shear.force_reading)
     ).reshape(-1, 4)
     cons = np.array(
         ConsolidationReading.objects.filter(stage=stage)

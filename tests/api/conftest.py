@@ -20,6 +20,7 @@ from datetime import date, timedelta
 from decimal import Decimal
 from typing import Any
 
+import numpy as np
 import pytest
 from django.contrib.auth.models import User
 from django.utils import timezone
@@ -43,12 +44,13 @@ from testing.models import (
     RunKind,
     RunState,
     Sample,
-    ShearReading,
     ShearStage,
     Specimen,
     StageResult,
 )
+from testing.selectors_readings import ShearColumns
 from testing.services import equipment
+from testing.services.readings_store import write_shear_columns
 from testing.services.records import specimen_create
 from testing.services.release import test_mark_released
 from testing.services.shear_setup import shear_test_create, stage_create
@@ -162,16 +164,17 @@ def _stage(cast: Cast, test: DirectShearTest, specimen: Specimen) -> ShearStage:
     ConsolidationReading.objects.bulk_create(
         ConsolidationReading(stage=stage, elapsed_min=t, settlement_mm=0.01 * t) for t in range(3)
     )
-    ShearReading.objects.bulk_create(
-        ShearReading(
-            stage=stage,
-            seq=i,
-            elapsed_min=0.5 * i,
-            horizontal_mm=0.1 * i,
-            vertical_mm=0.0,
-            force_reading=10.0 * i,
-        )
-        for i in range(1, 4)
+    seq = np.arange(1, 4, dtype=np.int64)
+    write_shear_columns(
+        stage.pk,
+        ShearColumns(
+            traverse=np.ones(3, dtype=np.int64),
+            seq=seq,
+            elapsed_min=np.array([0.5 * i for i in range(1, 4)], dtype=np.float64),
+            horizontal_mm=np.array([0.1 * i for i in range(1, 4)], dtype=np.float64),
+            vertical_mm=np.zeros(3, dtype=np.float64),
+            force_reading=np.array([10.0 * i for i in range(1, 4)], dtype=np.float64),
+        ),
     )
     return stage
 

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
+import numpy as np
 import pytest
 from django.contrib.auth.models import User
 from django.db import connection
@@ -14,8 +15,10 @@ from rest_framework.test import APIClient
 
 from reports.models import ReportRevision, RevisionState
 from reports.services import report_create, revision_approve, revision_check
-from testing.models import Organisation, SampleStatus, ShearReading
+from testing.models import Organisation, SampleStatus
+from testing.selectors_readings import ShearColumns, shear_reading_count
 from testing.services.lifecycle import sample_transition
+from testing.services.readings_store import write_shear_columns
 from tests.api.conftest import OrgWorld, org_world
 from tests.conftest import PASSWORD, Cast, make_records
 
@@ -60,6 +63,8 @@ EXPECTED = {
 }
 # Sub-lists of one record: (2) the record itself through the scoped queryset, then COUNT + page.
 NESTED = {
+    # shear readings are paged out of column blocks: the block index (the count) and the blocks
+    # holding the page, one query each however many readings there are
     "api:stage-readings": PROFILE + 1 + PAGE,
     "api:stage-consolidation-readings": PROFILE + 1 + PAGE,
     # events: the sample, then COUNT + SELECT joined to the user who moved it
@@ -100,17 +105,18 @@ def _grow(cast: Cast, worlds: list[OrgWorld], n: int) -> None:
 
 def _grow_nested(world: OrgWorld, user: User, n: int) -> None:
     stage, sample = world.stage, world.sample
-    existing = ShearReading.objects.filter(stage=stage).count()
-    ShearReading.objects.bulk_create(
-        ShearReading(
-            stage=stage,
-            seq=100 + i,
-            elapsed_min=100 + i,
-            horizontal_mm=1.0,
-            vertical_mm=0.0,
-            force_reading=1.0,
-        )
-        for i in range(existing, n)
+    existing = shear_reading_count(stage.pk)
+    added = np.arange(existing, n, dtype=np.int64)
+    write_shear_columns(
+        stage.pk,
+        ShearColumns(
+            traverse=np.ones(added.size, dtype=np.int64),
+            seq=100 + added,
+            elapsed_min=(100 + added).astype(np.float64),
+            horizontal_mm=np.full(added.size, 1.0),
+            vertical_mm=np.zeros(added.size),
+            force_reading=np.full(added.size, 1.0),
+        ),
     )
     from testing.models import ConsolidationReading
 

@@ -21,9 +21,9 @@ from testing.models import (
     ImportState,
     ReadingImport,
     ReadingsChange,
-    ShearReading,
     ShearStage,
 )
+from testing.selectors_readings import shear_columns, shear_reading_count
 from tests.api.conftest import World, token_client
 from tests.api.routes import CANONICAL_ROWS, MISSING_ID
 
@@ -60,7 +60,7 @@ def _url(stage: ShearStage | int) -> str:
 def _counts(stage: ShearStage) -> tuple[int, int]:
     return (
         ConsolidationReading.objects.filter(stage=stage).count(),
-        ShearReading.objects.filter(stage=stage).count(),
+        shear_reading_count(stage.pk),
     )
 
 
@@ -82,7 +82,7 @@ def test_json_rows_are_stored_in_stored_units(plain_world: World) -> None:
     assert last is not None
     assert last.elapsed_min == pytest.approx(10.0)
     assert last.settlement_mm == pytest.approx(0.12)
-    shear = list(ShearReading.objects.filter(stage=stage).order_by("seq"))
+    shear = list(shear_columns(stage.pk).rows())
     assert [r.elapsed_min for r in shear] == pytest.approx([0.0, 0.5, 1.0, 1.5])
     assert [r.force_reading for r in shear] == pytest.approx([0.0, 40.0, 80.0, 120.0])
     assert ReadingsChange.objects.filter(stage=stage, by=plain_world.cast.technician).count() == 1
@@ -118,14 +118,11 @@ def test_a_bad_upload_leaves_earlier_readings_exactly_as_they_were(plain_world: 
     stage = plain_world.a.open_stage
     client = token_client(plain_world.cast.technician)
     assert client.post(_url(stage), {"rows": CANONICAL_ROWS}, format="json").status_code == 201
-    before = list(ShearReading.objects.filter(stage=stage).order_by("traverse", "seq").values())
+    before = list(shear_columns(stage.pk).rows())
     changes = ReadingsChange.objects.filter(stage=stage).count()
     response = client.post(_url(stage), {"file": _file(BAD_CSV)}, format="multipart")
     assert response.status_code == 400, response.content
-    assert (
-        list(ShearReading.objects.filter(stage=stage).order_by("traverse", "seq").values())
-        == before
-    )
+    assert list(shear_columns(stage.pk).rows()) == before
     assert ReadingsChange.objects.filter(stage=stage).count() == changes
 
 
@@ -141,8 +138,8 @@ def test_canonical_csv_upload_then_the_same_file_again(plain_world: World) -> No
     assert record.state == ImportState.SUCCEEDED and record.stage_id == stage.pk
     assert _counts(stage) == (2, 3)
     # 30 s = 0.5 min (SI Brochure Table 8).
-    times = ShearReading.objects.filter(stage=stage).order_by("seq").values_list("elapsed_min")
-    assert [t for (t,) in times] == pytest.approx([0.0, 0.5, 1.0])
+    times = shear_columns(stage.pk).elapsed_min.tolist()
+    assert times == pytest.approx([0.0, 0.5, 1.0])
 
     again = client.post(_url(stage), {"file": _file(CSV)}, format="multipart")
     assert again.status_code == 200, again.content
@@ -249,8 +246,8 @@ def test_a_saved_layout_names_the_columns_of_json_rows(plain_world: World) -> No
     url = _url(stage)
     response = client.post(url, {"rows": rows, "layout": layout.pk}, format="json")
     assert response.status_code == 201, response.content
-    forces = ShearReading.objects.filter(stage=stage).order_by("seq").values_list("force_reading")
-    assert [f for (f,) in forces] == pytest.approx([0.0, 12.0, 24.0, 36.0, 48.0])  # divisions
+    forces = shear_columns(stage.pk).force_reading.tolist()
+    assert forces == pytest.approx([0.0, 12.0, 24.0, 36.0, 48.0])  # divisions
     # An id beyond any database integer is a field error, not a server error.
     huge = client.post(url, {"rows": rows, "layout": 10**30}, format="json")
     assert huge.status_code == 400

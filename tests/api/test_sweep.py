@@ -116,18 +116,22 @@ def test_lists_filters_and_page_size_abuse_show_client_a_no_foreign_row(world: W
 
 @pytest.mark.django_db
 def test_page_size_is_capped_at_200(plain_world: World) -> None:
-    from testing.models import ShearReading
+    import numpy as np
 
-    ShearReading.objects.bulk_create(
-        ShearReading(
-            stage=plain_world.a.stage,
+    from testing.selectors_readings import ShearColumns
+    from testing.services.readings_store import write_shear_columns
+
+    i = np.arange(250, dtype=np.int64)
+    write_shear_columns(
+        plain_world.a.stage.pk,
+        ShearColumns(
+            traverse=np.ones(250, dtype=np.int64),
             seq=100 + i,
-            elapsed_min=10 + i,
-            horizontal_mm=0.01 * i,
-            vertical_mm=0.0,
-            force_reading=1.0,
-        )
-        for i in range(250)
+            elapsed_min=(10 + i).astype(np.float64),
+            horizontal_mm=(0.01 * i).astype(np.float64),
+            vertical_mm=np.zeros(250),
+            force_reading=np.full(250, 1.0),
+        ),
     )
     client = token_client(plain_world.cast.technician)
     url = reverse("api:stage-readings", kwargs={"pk": plain_world.a.stage.pk})

@@ -16,9 +16,9 @@ from testing.models import (
     ConsolidationReading,
     ImportState,
     ReadingImport,
-    ShearReading,
     ShearStage,
 )
+from testing.selectors_readings import ShearColumns, shear_columns, shear_reading_count
 from testing.services.equipment import (
     calibration_in_force,
     calibration_record_create,
@@ -28,6 +28,7 @@ from testing.services.equipment import (
     stage_force_calibration,
 )
 from testing.services.errors import NotAllowed, ServiceError
+from testing.services.readings_store import write_shear_columns
 from tests.conftest import Cast, Records
 from tests.importers.conftest import make_stage
 
@@ -92,11 +93,16 @@ def test_expired_and_out_of_range_calibrations_are_error_flags(
     stage = make_stage(cast, records_a, 1, force_unit="div")
     stage_calibration_link(user=cast.technician, stage=stage, device=ring, on=date(2026, 5, 1))
     stage.refresh_from_db()
-    ShearReading.objects.create(
-        stage=stage, seq=1, elapsed_min=0, horizontal_mm=0, vertical_mm=0, force_reading=10
-    )
-    ShearReading.objects.create(
-        stage=stage, seq=2, elapsed_min=1, horizontal_mm=0.1, vertical_mm=0, force_reading=800
+    write_shear_columns(
+        stage.pk,
+        ShearColumns(
+            traverse=np.array([1, 1], dtype=np.int64),
+            seq=np.array([1, 2], dtype=np.int64),
+            elapsed_min=np.array([0.0, 1.0]),
+            horizontal_mm=np.array([0.0, 0.1]),
+            vertical_mm=np.array([0.0, 0.0]),
+            force_reading=np.array([10.0, 800.0]),
+        ),
     )
     flags = {f.code: f for f in stage_calibration_flags(stage, date(2026, 5, 1))}
     assert set(flags) == {"CALIBRATION_EXPIRED", "CALIBRATION_OUT_OF_RANGE"}
@@ -145,20 +151,21 @@ def test_demo_logger_files_import_in_two_layouts_and_show_the_expired_flag(
         "Bench logger export (semicolon; min, in, kN)",
     }
     for stage in stages:
-        assert stage.shear_readings.count() >= 100
+        assert shear_reading_count(stage.pk) >= 100
         assert stage.consolidation_readings.count() >= 10
         flags = stage_calibration_flags(stage, stage.shear_started_at.date())  # type: ignore[union-attr]
         assert [f.code for f in flags] == ["CALIBRATION_EXPIRED"]
     # The second layout (inches, kN, downward positive, continuous clock) lands in the same units
     # as the canonical one: 1 in = 25.4 mm and 1 kN = 1000 N exactly (NIST SP 811).
     third = stages[2]
-    first_shear = third.shear_readings.order_by("seq").first()
+    third_shear = shear_columns(third.pk)
+    first_shear = third_shear.row(0) if len(third_shear) else None
     assert (
         first_shear is not None
         and first_shear.elapsed_min == 0.0
         and first_shear.horizontal_mm == 0.0
     )
-    last = third.shear_readings.order_by("-seq").first()
+    last = third_shear.row(len(third_shear) - 1) if len(third_shear) else None
     assert (
         last is not None and 5.0 < last.horizontal_mm < 20.0 and 50.0 < last.force_reading < 1000.0
     )

@@ -10,15 +10,17 @@ from typing import Any
 import pytest
 from django.core.files.uploadedfile import SimpleUploadedFile
 from django.db import OperationalError
+from django.db.models import Sum
 
 from testing.models import (
     ComputationRun,
     ConsolidationReading,
     ImportState,
     ReadingImport,
-    ShearReading,
+    ShearReadingBlock,
     ShearStage,
 )
+from testing.selectors_readings import shear_columns, shear_reading_count
 from testing.services import imports, readings_store
 from testing.services.errors import NotAllowed, ServiceError
 from testing.services.imports import UploadTooLarge, stage_readings_import
@@ -29,6 +31,11 @@ from tests.importers.conftest import as_bytes, canonical_lines
 @pytest.fixture(autouse=True)
 def _media(settings: Any, tmp_path: Path) -> None:
     settings.MEDIA_ROOT = tmp_path / "media"
+
+
+def _all_shear_readings() -> int:
+    """Shear readings stored, all stages together."""
+    return ShearReadingBlock.objects.aggregate(n=Sum("count"))["n"] or 0
 
 
 def _upload(data: bytes, name: str = "logger.csv") -> SimpleUploadedFile:
@@ -67,7 +74,7 @@ def test_a_file_with_seven_bad_rows_saves_nothing_and_lists_all_seven(
         user=cast.technician, stage=load_cell_stage, upload=_upload(data)
     )
     assert record.state == ImportState.REJECTED
-    assert ShearReading.objects.count() == 0
+    assert _all_shear_readings() == 0
     assert ConsolidationReading.objects.count() == 0
     assert sorted((e["row"], e["column"]) for e in record.errors) == expected
     assert all(e["reason"] for e in record.errors)
@@ -94,13 +101,13 @@ def test_database_failing_at_row_250_saves_nothing_marks_failed_and_a_retry_save
         real_batch(write, parsed, start, stop)
         written.append(stop - start)
 
-    monkeypatch.setattr(readings_store, "BATCH_ROWS", 50)
+    monkeypatch.setattr(readings_store, "BLOCK_READINGS", 50)
     monkeypatch.setattr(readings_store, "_write_shear_batch", dying_batch)
     first = stage_readings_import(user=cast.technician, stage=load_cell_stage, upload=_upload(data))
     assert sum(written) == 250  # the failure came after 250 rows had been sent
     assert first.state == ImportState.FAILED
     assert "server closed the connection" in first.reason
-    assert ShearReading.objects.count() == 0
+    assert _all_shear_readings() == 0
     first.refresh_from_db()
     assert first.state == ImportState.FAILED and first.reason
     assert not ComputationRun.objects.exists()
@@ -108,7 +115,7 @@ def test_database_failing_at_row_250_saves_nothing_marks_failed_and_a_retry_save
     monkeypatch.setattr(readings_store, "_write_shear_batch", real_batch)
     retry = stage_readings_import(user=cast.technician, stage=load_cell_stage, upload=_upload(data))
     assert retry.state == ImportState.SUCCEEDED
-    assert ShearReading.objects.filter(stage=load_cell_stage).count() == 500
+    assert shear_reading_count(load_cell_stage.pk) == 500
     assert retry.shear_rows == 500
     assert ComputationRun.objects.filter(stage=load_cell_stage, kind="stage_reduction").exists()
 
@@ -120,7 +127,7 @@ def test_the_same_file_twice_adds_nothing_and_names_the_first_import(
     data = as_bytes(canonical_lines(120, n_cons=12))
     first = stage_readings_import(user=cast.technician, stage=load_cell_stage, upload=_upload(data))
     assert first.state == ImportState.SUCCEEDED
-    counts = (ShearReading.objects.count(), ConsolidationReading.objects.count())
+    counts = (_all_shear_readings(), ConsolidationReading.objects.count())
     assert counts == (120, 12)
     second = stage_readings_import(
         user=cast.technician, stage=load_cell_stage, upload=_upload(data, "copy of logger.csv")
@@ -128,7 +135,7 @@ def test_the_same_file_twice_adds_nothing_and_names_the_first_import(
     assert second.state == ImportState.DUPLICATE
     assert second.duplicate_of == first
     assert f"import #{first.pk}" in second.reason and "logger.csv" in second.reason
-    assert (ShearReading.objects.count(), ConsolidationReading.objects.count()) == counts
+    assert (_all_shear_readings(), ConsolidationReading.objects.count()) == counts
     assert ReadingImport.objects.filter(state=ImportState.SUCCEEDED).count() == 1
 
 
@@ -145,7 +152,7 @@ def test_a_new_file_replaces_the_phase_it_carries_and_supersedes_the_old_import(
         user=cast.technician, stage=load_cell_stage, upload=_upload(as_bytes(canonical_lines(150)))
     )
     assert second.state == ImportState.SUCCEEDED and second.replaced_rows == 120
-    assert ShearReading.objects.count() == 150
+    assert _all_shear_readings() == 150
     assert ConsolidationReading.objects.count() == 12  # the new file had no consolidation rows
     first.refresh_from_db()
     assert first.state == ImportState.SUPERSEDED
@@ -276,5 +283,6 @@ def test_a_ring_stage_refuses_a_file_in_newtons_and_takes_divisions(
         user=cast.technician, stage=ring_stage, upload=_upload(data), layout=layout
     )
     assert record.state == ImportState.SUCCEEDED
-    first = ShearReading.objects.filter(stage=ring_stage).order_by("seq").first()
+    columns = shear_columns(ring_stage.pk)
+    first = columns.row(0) if len(columns) else None
     assert first is not None and first.force_reading == pytest.approx(80.0)  # raw divisions kept

@@ -16,7 +16,8 @@ import pytest
 from django.core.files.uploadedfile import SimpleUploadedFile
 from openpyxl import Workbook
 
-from testing.models import ConsolidationReading, ImportLayout, ShearReading, ShearStage
+from testing.models import ConsolidationReading, ImportLayout, ShearStage
+from testing.selectors_readings import shear_columns, shear_reading_count
 from testing.services.imports import ReadingsRejected, import_layout_save, stage_readings_import
 from testing.services.readings_entry import manual_rows_reduce, stage_readings_enter
 from tests.conftest import Cast
@@ -84,12 +85,10 @@ def test_an_xlsx_in_inches_and_lbf_is_stored_in_mm_and_newtons(
     assert record.state == "succeeded", (record.reason, record.errors[:3])
     assert (record.consolidation_rows, record.shear_rows) == (4, 40)
 
-    stored = list(
-        ShearReading.objects.filter(stage=load_cell_stage)
-        .order_by("seq")
-        .values_list("elapsed_min", "horizontal_mm", "vertical_mm", "force_reading")
+    stored = shear_columns(load_cell_stage.pk)
+    got = np.column_stack(
+        [stored.elapsed_min, stored.horizontal_mm, stored.vertical_mm, stored.force_reading]
     )
-    got = np.array(stored)
     sent = np.array([row[:4] for row in shear], dtype=float)
     np.testing.assert_allclose(got[:, 0], sent[:, 0], rtol=1e-12)  # already minutes
     np.testing.assert_allclose(got[:, 1], sent[:, 1] * INCH_MM, rtol=1e-12)
@@ -122,7 +121,7 @@ def test_an_xlsx_with_bad_cells_saves_nothing_and_names_each_row_and_column(
         layout=_us_layout(cast),
     )
     assert record.state == "rejected"
-    assert ShearReading.objects.filter(stage=load_cell_stage).count() == 0
+    assert shear_reading_count(load_cell_stage.pk) == 0
     # Sheet rows: title (1), blank (2), header (3), so data row i is sheet row i + 4.
     found = {(e["row"], e["column"]) for e in record.errors}
     assert (4 + 4, "Shear load (lbf)") in found
@@ -143,7 +142,7 @@ def test_an_xlsx_without_the_layouts_sheet_is_refused_with_the_sheet_named(
     )
     assert record.state == "rejected"
     assert "Run 1" in (record.reason + " ".join(str(e) for e in record.errors))
-    assert ShearReading.objects.filter(stage=load_cell_stage).count() == 0
+    assert shear_reading_count(load_cell_stage.pk) == 0
 
 
 # --- Manual entry from dial gauges ---------------------------------------------------------------
@@ -197,16 +196,12 @@ def test_grid_entry_stores_both_phases_and_replaces_them_when_entered_again(
 ) -> None:
     counts = stage_readings_enter(user=cast.technician, stage=ring_stage, rows=_grid())
     assert counts == (5, 25)
-    forces = list(
-        ShearReading.objects.filter(stage=ring_stage)
-        .order_by("seq")
-        .values_list("force_reading", flat=True)
-    )
+    forces = shear_columns(ring_stage.pk).force_reading.tolist()
     assert forces == [4.0 * i for i in range(25)]  # divisions kept raw; the calibration converts
     # Entering the shear phase again replaces it and leaves the consolidation rows alone.
     again = [row for row in _grid() if row["phase"] == "shear"][:10]
     assert stage_readings_enter(user=cast.technician, stage=ring_stage, rows=again) == (0, 10)
-    assert ShearReading.objects.filter(stage=ring_stage).count() == 10
+    assert shear_reading_count(ring_stage.pk) == 10
     assert ConsolidationReading.objects.filter(stage=ring_stage).count() == 5
 
 
@@ -220,5 +215,5 @@ def test_grid_entry_with_bad_rows_saves_nothing_and_lists_each(
     with pytest.raises(ReadingsRejected) as caught:
         stage_readings_enter(user=cast.technician, stage=ring_stage, rows=grid)
     assert sorted(e.row for e in caught.value.errors) == [8, 13]  # grid rows count from 1
-    assert ShearReading.objects.filter(stage=ring_stage).count() == 0
+    assert shear_reading_count(ring_stage.pk) == 0
     assert ConsolidationReading.objects.filter(stage=ring_stage).count() == 0

@@ -15,11 +15,12 @@ from reports.models import ReportRevision, RevisionState
 from testing.models import (
     ConsolidationReading,
     ReadingsChange,
-    ShearReading,
+    ShearReadingBlock,
     ShearStage,
     Specimen,
     StageResult,
 )
+from testing.selectors_readings import shear_columns
 from testing.services.stage_inputs import stage_inputs_load
 from tests.conftest import PASSWORD, Cast
 
@@ -57,9 +58,9 @@ def test_admin_post_does_not_change_a_checked_stage_or_its_readings(
     assert stage is not None and StageResult.objects.filter(stage=stage).exists()
     digest_before = stage_inputs_load(stage).digest()
     log_before = ReadingsChange.objects.count()
-    reading = ShearReading.objects.filter(stage=stage).order_by("seq")[10]
-    # Shear readings have no admin pages at all (a composite key; a stage can hold a million).
-    assert not admin.site.is_registered(ShearReading)
+    reading = shear_columns(stage.pk).row(10)
+    # Shear readings have no admin pages at all (packed column blocks; a stage can hold a million).
+    assert not admin.site.is_registered(ShearReadingBlock)
     consolidation = ConsolidationReading.objects.filter(stage=stage).order_by("pk").first()
     assert consolidation is not None
 
@@ -107,7 +108,9 @@ def test_admin_post_does_not_change_a_checked_stage_or_its_readings(
     stage.refresh_from_db()
     assert stage_inputs_load(stage).digest() == digest_before
     assert ReadingsChange.objects.count() == log_before
-    assert ShearReading.objects.get(pk=reading.pk).force_reading == reading.force_reading
+    after = shear_columns(stage.pk).row(10)
+    assert (after.traverse, after.seq) == (reading.traverse, reading.seq)
+    assert after.force_reading == reading.force_reading
     assert Specimen.objects.get(pk=stage.specimen_id).height_mm == stage.specimen.height_mm
 
     # The test set's page shows its stages, but not as a form that could change them.

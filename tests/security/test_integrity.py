@@ -10,12 +10,13 @@ from __future__ import annotations
 from io import StringIO
 from pathlib import Path
 
+import numpy as np
 import pytest
 from django.core.management import CommandError, call_command
 from django.db import connection
 
 from reports.models import AuditEvent, ReportRevision
-from testing.models import ShearReading
+from testing.models import ShearReadingBlock
 
 pytestmark = pytest.mark.security
 
@@ -97,8 +98,10 @@ def test_readings_changed_around_the_application_fail(issued_revision: ReportRev
     assert test is not None
     stage = test.stages.order_by("stage_number").first()
     assert stage is not None
-    reading = ShearReading.objects.filter(stage=stage).order_by("seq")[10]
-    ShearReading.objects.filter(pk=reading.pk).update(force_reading=reading.force_reading + 1)
+    block = ShearReadingBlock.objects.filter(stage=stage).order_by("traverse", "first_seq")[0]
+    force = np.frombuffer(block.force_reading, dtype="<f8").copy()
+    force[10] += 1.0  # one reading's force, one division or newton more
+    ShearReadingBlock.objects.filter(pk=block.pk).update(force_reading=force.tobytes())
     message = _verify_fails()
     assert f"stage {stage.stage_number} (stage id {stage.pk})" in message
     assert "changed outside Tauline" in message
@@ -110,9 +113,8 @@ def test_a_missing_or_disabled_guard_trigger_fails_the_check() -> None:
     disabled) is named. The change is made inside the test's transaction and rolled back."""
     from labsite.dbguards import guard_trigger_problems
     from reports import guards as report_guards
-    from testing import guards as testing_guards
 
-    expected = (report_guards.GUARD_TRIGGERS, testing_guards.GUARD_TRIGGERS)
+    expected = (report_guards.GUARD_TRIGGERS,)
     assert guard_trigger_problems(*expected) == []
     out = StringIO()
     call_command("verify_integrity", "--skip-signatures", stdout=out)
@@ -120,20 +122,18 @@ def test_a_missing_or_disabled_guard_trigger_fails_the_check() -> None:
     with connection.cursor() as cursor:
         if connection.vendor == "postgresql":
             cursor.execute(
-                "ALTER TABLE testing_shearreading DISABLE TRIGGER testing_shear_reading_stage_insert"
+                "ALTER TABLE reports_signoff DISABLE TRIGGER reports_signoff_append_only"
             )
             cursor.execute("DROP TRIGGER reports_audit_not_deleted ON reports_auditevent")
             dropped = "reports_audit_not_deleted on reports_auditevent is missing"
-            disabled = "testing_shear_reading_stage_insert on testing_shearreading is disabled"
+            disabled = "reports_signoff_append_only on reports_signoff is disabled"
         else:
-            cursor.execute("DROP TRIGGER testing_shear_reading_stage_insert")
+            cursor.execute("DROP TRIGGER reports_signoff_append_only")
             cursor.execute("DROP TRIGGER reports_audit_append_only")
             dropped = "reports_audit_append_only on reports_auditevent is missing"
-            disabled = "testing_shear_reading_stage_insert on testing_shearreading is missing"
+            disabled = "reports_signoff_append_only on reports_signoff is missing"
     problems = guard_trigger_problems(*expected)
-    assert [p.removeprefix("database guard trigger ") for p in problems] == sorted(
-        [dropped, disabled], key=lambda line: not line.startswith("reports")
-    )
+    assert [p.removeprefix("database guard trigger ") for p in problems] == [dropped, disabled]
     err = StringIO()
     with pytest.raises(CommandError):
         call_command("verify_integrity", "--skip-signatures", stdout=StringIO(), stderr=err)

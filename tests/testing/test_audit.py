@@ -43,13 +43,14 @@ from testing.models import (
     Sample,
     SampleEvent,
     SampleStatus,
-    ShearReading,
+    ShearReadingBlock,
     ShearStage,
     Specimen,
     StageExclusion,
     StageResult,
 )
 from testing.models.samples import SAMPLE_TRANSITIONS
+from testing.selectors_readings import shear_reading_count
 from testing.services import release
 from testing.services.computation import stage_exclude, stage_include, stage_reduction_request
 from testing.services.edits import record_update, specimen_update, stage_update
@@ -221,22 +222,31 @@ def _readings_digest_by_hand(stage: ShearStage) -> str:
     c = hashlib.sha256(
         b"".join(struct.pack("<2d", r.elapsed_min + 0.0, r.settlement_mm + 0.0) for r in cons)
     ).hexdigest()
-    shear = ShearReading.objects.filter(stage=stage).order_by("traverse", "seq")
+    # Shear readings are stored in column blocks: reading first_seq + i of a block is the i-th
+    # little-endian double of each of its columns; unpacked here with struct, not the selectors.
+    shear = []
+    for block in ShearReadingBlock.objects.filter(stage=stage).order_by("traverse", "first_seq"):
+        columns = [
+            struct.unpack(f"<{block.count}d", bytes(getattr(block, name)))
+            for name in ("elapsed_min", "horizontal_mm", "vertical_mm", "force_reading")
+        ]
+        for i in range(block.count):
+            shear.append((block.traverse, block.first_seq + i, *(col[i] for col in columns)))
     s = hashlib.sha256(
         b"".join(
             struct.pack(
                 "<6d",
-                float(r.traverse),
-                float(r.seq),
-                r.elapsed_min + 0.0,
-                r.horizontal_mm + 0.0,
-                r.vertical_mm + 0.0,
-                r.force_reading + 0.0,
+                float(traverse),
+                float(seq),
+                elapsed_min + 0.0,
+                horizontal_mm + 0.0,
+                vertical_mm + 0.0,
+                force_reading + 0.0,
             )
-            for r in shear
+            for traverse, seq, elapsed_min, horizontal_mm, vertical_mm, force_reading in shear
         )
     ).hexdigest()
-    text = f"consolidation {cons.count()} {c}\nshear {shear.count()} {s}\n"
+    text = f"consolidation {cons.count()} {c}\nshear {len(shear)} {s}\n"
     return hashlib.sha256(text.encode()).hexdigest()
 
 
@@ -432,7 +442,7 @@ def _check_readings(lab: Lab, step: Step, user: User) -> str:
     stage = ShearStage.objects.get(pk=lab.stages[step.target].pk)
     n_cons, n_shear = step.value
     before = _counts()
-    counts_before = (stage.consolidation_readings.count(), stage.shear_readings.count())
+    counts_before = (stage.consolidation_readings.count(), shear_reading_count(stage.pk))
     digest_before = _readings_digest_by_hand(stage)
     start = timezone.now()
     if step.persona not in MAY["records"]:
@@ -645,7 +655,7 @@ def test_nothing_changes_once_the_test_set_is_released(lab: Lab) -> None:
             stage_exclude(stage=stage, envelope_type="peak", reason="late", user=user)
     assert _delta(before) == {}
     stage.refresh_from_db()
-    assert stage.weights_mass_kg == 2.0 and stage.shear_readings.count() == 80
+    assert stage.weights_mass_kg == 2.0 and shear_reading_count(stage.pk) == 80
 
 
 def test_readings_replace_records_counts_and_both_hashes(lab: Lab) -> None:

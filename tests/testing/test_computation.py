@@ -8,6 +8,7 @@ from io import StringIO
 from typing import Any
 from unittest import mock
 
+import numpy as np
 import pytest
 from django.core.management import call_command
 from django.db import OperationalError, transaction
@@ -21,7 +22,7 @@ from testing.models import (
     OutboxMessage,
     RunKind,
     RunState,
-    ShearReading,
+    ShearReadingBlock,
     StageResult,
 )
 from testing.services import computation
@@ -108,9 +109,12 @@ def test_changed_readings_make_a_new_result_and_keep_the_old(demo: dict[str, Any
     old = selectors.latest_stage_result(stage=stage)
     assert old is not None
     old_values = (old.pk, old.failure_shear_stress_kpa, old.inputs_hash)
-    ShearReading.objects.filter(stage=stage).update(
-        force_reading=1.1 * 100
-    )  # a flat, different curve
+    for block in ShearReadingBlock.objects.filter(stage=stage):  # a flat, different curve
+        force = np.frombuffer(block.force_reading, dtype="<f8").copy()
+        force[:] = 1.1 * 100
+        ShearReadingBlock.objects.filter(pk=block.pk).update(
+            force_reading=force.astype("<f8").tobytes()
+        )
     with demo["capture"](execute=True):
         computation.stage_reduction_request(
             stage=stage, user=demo["technician"], reason="readings edited"
@@ -164,7 +168,7 @@ def test_a_run_without_readings_fails_with_a_message_a_person_can_act_on(
     demo: dict[str, Any],
 ) -> None:
     stage = demo["sand"].stages.first()
-    ShearReading.objects.filter(stage=stage).delete()
+    ShearReadingBlock.objects.filter(stage=stage).delete()
     with demo["capture"](execute=True):
         run = computation.stage_reduction_request(stage=stage, user=demo["technician"], reason="a")
     run.refresh_from_db()

@@ -40,6 +40,20 @@ BIN = Path(sys.executable).parent
 EXTRA_SETS = 6  # 2 demo sets + 6 copies = 8 sets, 24 stages
 
 
+def _set_every_force(value: float, stage_ids: list[int] | None = None) -> str:
+    """Shell code setting every shear force reading (of ``stage_ids``, or of all stages) to
+    ``value``, straight in the database: each column block decoded, changed and written back."""
+    blocks = (
+        "B.objects.all()" if stage_ids is None else f"B.objects.filter(stage_id__in={stage_ids})"
+    )
+    return (
+        "import numpy as np; from testing.models import ShearReadingBlock as B\n"
+        f"for b in {blocks}:\n"
+        f"    f = np.frombuffer(b.force_reading, dtype='<f8').copy(); f[:] = {value!r}\n"
+        "    B.objects.filter(pk=b.pk).update(force_reading=f.astype('<f8').tobytes())\n"
+    )
+
+
 @dataclass
 class Rig:
     env: dict[str, str]
@@ -170,7 +184,7 @@ def test_a_task_that_kills_its_worker_every_time_fails_after_three_deliveries(ri
         rig.env,
         "shell",
         "-c",
-        f"from testing.models import ShearReading; ShearReading.objects.filter(stage_id__in={stage_ids}).update(force_reading=50)",
+        _set_every_force(50.0, stage_ids),
     )
     crash = rig.driver("submit-one", str(stage_ids[0]))["run"]
     healthy = rig.driver("submit-one", str(stage_ids[1]))["run"]
@@ -214,7 +228,7 @@ def test_broker_down_for_30_s_answers_fast_and_catches_up(rig: Rig) -> None:
         rig.env,
         "shell",
         "-c",
-        "from testing.models import ShearReading; ShearReading.objects.update(force_reading=60)",
+        _set_every_force(60.0),
     )
     before = rig.driver("status")
 

@@ -16,8 +16,9 @@ import pytest
 from django.contrib.auth.models import User
 from django.core.management import call_command
 
-from testing.models import DirectShearTest, Sample, ShearReading, StageResult
+from testing.models import DirectShearTest, Sample, StageResult
 from testing.models.samples import OPEN_STATUSES
+from testing.selectors_readings import shear_columns
 from testing.services import computation
 from tests.web.browser_support import SHOTS
 
@@ -152,7 +153,7 @@ def test_technician_previews_and_imports_a_logger_file_and_sees_the_results(
 ) -> None:
     clay = DirectShearTest.objects.get(reference="DS-02")
     stage = clay.stages.get(stage_number=2)
-    readings = ShearReading.objects.filter(stage=stage).order_by("traverse", "seq")
+    readings = shear_columns(stage.pk).rows()
     # The load-cell stage's own readings, written as a logger would: seconds, mm, N.
     lines = ["time_s,horizontal_displacement_mm,vertical_displacement_mm,shear_force_n,phase"]
     for r in readings:

@@ -10,7 +10,8 @@ from typing import Any
 
 import pytest
 
-from testing.models import ConsolidationReading, ShearReading, ShearStage
+from testing.models import ConsolidationReading, ShearStage
+from testing.selectors_readings import shear_columns, shear_reading_count
 from tests.conftest import PASSWORD, Cast, Records
 from tests.web.browser_support import SHOTS
 from tests.web.test_browser import Session
@@ -92,11 +93,7 @@ def test_a_technician_types_and_pastes_readings_sees_the_force_and_saves(
     page.get_by_role("button", name="Save readings", exact=True).last.click()
     page.wait_for_load_state()
     assert "Saved 2 consolidation and 7 shear readings" in page.content()
-    forces = list(
-        ShearReading.objects.filter(stage=ring)
-        .order_by("seq")
-        .values_list("force_reading", flat=True)
-    )
+    forces = shear_columns(ring.pk).force_reading.tolist()
     assert forces == [0.0, 40.0, 61.0, 78.5, 90.0, 96.0, 99.0]  # divisions, stored raw
     settlements = list(
         ConsolidationReading.objects.filter(stage=ring)
@@ -120,4 +117,4 @@ def test_a_technician_types_and_pastes_readings_sees_the_force_and_saves(
     page.locator('section[aria-labelledby="manual-h"]').screenshot(
         path=str(SHOTS / "stage-entry-grid-rejected.png")
     )
-    assert ShearReading.objects.filter(stage=ring).count() == 7
+    assert shear_reading_count(ring.pk) == 7

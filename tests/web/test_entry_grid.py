@@ -18,7 +18,8 @@ from django.test import Client
 from django.urls import reverse
 
 from testing.forms import upward_from_settlement
-from testing.models import ConsolidationReading, ShearReading, ShearStage
+from testing.models import ConsolidationReading, ShearStage
+from testing.selectors_readings import shear_columns, shear_reading_count
 from tests.conftest import Cast, Records
 from tests.importers.conftest import make_stage
 
@@ -197,11 +198,10 @@ def test_posting_the_grid_saves_both_phases_and_ignores_empty_rows(
     # The dial's settlement (compression +) comes back as typed: the grid sends vertical =
     # −settlement (upward +) and the store keeps settlement = −vertical (common practice).
     assert cons == [(0.0, 0.0), (0.25, 0.041), (1.0, 0.087), (4.0, 0.125)]
-    shear = list(
-        ShearReading.objects.filter(stage=ring)
-        .order_by("seq")
-        .values_list("elapsed_min", "horizontal_mm", "vertical_mm", "force_reading")
-    )
+    shear = [
+        (r.elapsed_min, r.horizontal_mm, r.vertical_mm, r.force_reading)
+        for r in shear_columns(ring.pk).rows()
+    ]
     # Vertical upward positive (dilation +); proving-ring divisions stored raw.
     assert shear == [(0.0, 0.0, 0.0, 0.0), (0.5, 0.25, -0.004, 31.0), (1.0, 0.5, 0.012, 58.5)]
 
@@ -228,7 +228,7 @@ def test_a_rejected_grid_is_drawn_again_as_typed_with_each_bad_row_marked(
     }
     response = _signed_in(cast, "technician").post(reverse("stage-enter", args=[ring.pk]), data)
     assert response.status_code == 400
-    assert ShearReading.objects.filter(stage=ring).count() == 0
+    assert shear_reading_count(ring.pk) == 0
     assert ConsolidationReading.objects.filter(stage=ring).count() == 0
     grid = _grid_of(response.content)
     for name, value in data.items():
@@ -252,7 +252,7 @@ def test_an_empty_grid_is_refused_without_saving(cast: Cast, ring: ShearStage) -
     )
     assert response.status_code == 400
     assert b"Type at least one reading" in response.content
-    assert ShearReading.objects.filter(stage=ring).count() == 0
+    assert shear_reading_count(ring.pk) == 0
 
 
 @pytest.mark.django_db
@@ -272,7 +272,7 @@ def test_add_rows_and_show_values_redraw_the_grid_without_saving(
     # τ = 1000 × 60.8 N / 3600 mm² = 16.9 kPa (one decimal as drawn).
     assert ">60.8<" in checked.content.decode()
     assert ">16.9<" in checked.content.decode()
-    assert ShearReading.objects.filter(stage=ring).count() == 0
+    assert shear_reading_count(ring.pk) == 0
 
 
 # --- the reduce endpoint -------------------------------------------------------------------------
@@ -309,7 +309,7 @@ def test_the_reduce_endpoint_gives_force_and_stress_per_grid_row(
     assert rows[7]["force_n"] == pytest.approx(148.2, rel=1e-12)  # 97.5 × 1.52 by hand
     assert rows[8]["force_n"] is None and rows[8]["shear_stress_kpa"] is None
     assert rows[8]["note"]
-    assert ShearReading.objects.filter(stage=ring).count() == 0
+    assert shear_reading_count(ring.pk) == 0
 
 
 @pytest.mark.django_db
@@ -387,21 +387,13 @@ def test_a_second_traverse_is_entered_without_touching_the_first(
     second = {"traverse": "2", **_shear(1, 0, 0, 0, 0), **_shear(2, 1.0, 0.4, -0.01, 25)}
     assert technician.post(url, first).status_code == 302
     assert technician.post(url, second).status_code == 302
-    stored = list(
-        ShearReading.objects.filter(stage=ring)
-        .order_by("traverse", "seq")
-        .values_list("traverse", "horizontal_mm", "force_reading")
-    )
+    stored = [(r.traverse, r.horizontal_mm, r.force_reading) for r in shear_columns(ring.pk).rows()]
     assert stored == [(1, 0.0, 0.0), (1, 0.5, 40.0), (2, 0.0, 0.0), (2, 0.4, 25.0)]
     # Typing traverse 2 again replaces traverse 2 only.
     again = {"traverse": "2", **_shear(1, 0, 0, 0, 0), **_shear(2, 2.0, 0.9, -0.02, 27)}
     assert technician.post(url, again).status_code == 302
-    stored = list(
-        ShearReading.objects.filter(stage=ring)
-        .order_by("traverse", "seq")
-        .values_list("traverse", "horizontal_mm")
-    )
-    assert stored == [(1, 0.0), (1, 0.5), (2, 0.0), (2, 0.9)]
+    replaced = [(r.traverse, r.horizontal_mm) for r in shear_columns(ring.pk).rows()]
+    assert replaced == [(1, 0.0), (1, 0.5), (2, 0.0), (2, 0.9)]
     last = ReadingsChange.objects.filter(stage=ring).order_by("-id").first()
     assert last is not None
     assert (last.shear_rows_before, last.shear_rows_after) == (4, 4)
@@ -417,7 +409,7 @@ def test_a_traverse_the_stage_does_not_have_is_refused(cast: Cast, ring: ShearSt
         reverse("stage-enter", args=[ring.pk]), {"traverse": "2", **_shear(1, 0, 0, 0, 0)}
     )
     assert response.status_code == 400  # the stage has one traverse
-    assert ShearReading.objects.filter(stage=ring).count() == 0
+    assert shear_reading_count(ring.pk) == 0
     # The service refuses it too, for any caller of the grid's save.
     with pytest.raises(ReadingsRejected) as refused:
         stage_readings_enter(
@@ -428,4 +420,4 @@ def test_a_traverse_the_stage_does_not_have_is_refused(cast: Cast, ring: ShearSt
         )  # fmt: skip
     assert [(e.row, e.column) for e in refused.value.errors] == [(1, "traverse")]
     assert "1 traverse" in refused.value.errors[0].reason
-    assert ShearReading.objects.filter(stage=ring).count() == 0
+    assert shear_reading_count(ring.pk) == 0

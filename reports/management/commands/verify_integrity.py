@@ -13,8 +13,8 @@ For each revision that was ever issued (current, superseded or withdrawn after i
 
 And for every stage: its readings-change audit rows link from no readings to the last change,
 and the readings stored now hash to what the last change left (nothing was changed around the
-application). And the database's guard triggers (``reports.guards``, ``testing.guards``) are all
-present and enabled.
+application). And the database's guard triggers (``reports.guards``) are all present and
+enabled.
 
 Run it after a restore (``scripts/restore-drill.sh`` does) and on a schedule.
 """
@@ -41,7 +41,6 @@ from reports.models import (
 )
 from reports.rendering.context import content_sha256
 from reports.verification import revision_signature_check
-from testing import guards as testing_guards
 from testing.models import ShearStage
 from testing.services.readings_audit import readings_trail_problems
 
@@ -219,9 +218,7 @@ class Command(BaseCommand):
             problems += _audit_problems(revision, trail)
             failures += [f"{_name(revision)}: {problem}" for problem in problems]
 
-        failures += guard_trigger_problems(
-            report_guards.GUARD_TRIGGERS, testing_guards.GUARD_TRIGGERS
-        )
+        failures += guard_trigger_problems(report_guards.GUARD_TRIGGERS)
 
         stages = 0
         for stage_id, test_reference, stage_number in ShearStage.objects.order_by("id").values_list(

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from typing import Any
+
 from django.db.models import Q
 from rest_framework import serializers
 
@@ -13,7 +15,6 @@ from testing.models import (
     DirectShearTest,
     ForceDevice,
     Project,
-    ShearReading,
     ShearStage,
     Specimen,
 )
@@ -118,10 +119,23 @@ class StageCalibrationOut(serializers.Serializer):
     )
 
 
-class ShearReadingOut(OutputSerializer):
-    class Meta:
-        model = ShearReading
-        fields = ["traverse", "seq", "elapsed_min", "horizontal_mm", "vertical_mm", "force_reading"]
+class ShearReadingOut(serializers.Serializer[Any]):
+    """One shear reading (stored in column blocks; see ``testing.selectors_readings``)."""
+
+    traverse = serializers.IntegerField(read_only=True)
+    seq = serializers.IntegerField(read_only=True, help_text="Reading number within the traverse.")
+    elapsed_min = serializers.FloatField(
+        read_only=True, help_text="Time since shearing started [min]."
+    )
+    horizontal_mm = serializers.FloatField(
+        read_only=True, help_text="Relative horizontal displacement [mm]."
+    )
+    vertical_mm = serializers.FloatField(
+        read_only=True, help_text="Vertical displacement, dilation (upward) positive [mm]."
+    )
+    force_reading = serializers.FloatField(
+        read_only=True, help_text="Force device reading [div or N, see the stage]."
+    )
 
 
 class ConsolidationReadingOut(OutputSerializer):

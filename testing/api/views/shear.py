@@ -29,9 +29,9 @@ from testing.models import (
     DirectShearTest,
     ImportState,
     ReadingImport,
-    ShearReading,
     ShearStage,
 )
+from testing.selectors_readings import ShearReadingPages
 from testing.services import computation, equipment, imports, readings_entry, shear_setup
 
 
@@ -95,8 +95,8 @@ class StageViewSet(CreateViaServiceMixin, RecordViewSet):
     def readings(self, request: Request, pk: str | None = None) -> Response:
         """Shear readings in order (traverse, reading number), a page at a time."""
         stage = self.get_object()
-        queryset = ShearReading.objects.filter(stage=stage).order_by("traverse", "seq")
-        page = self.paginate_queryset(queryset)
+        readings: Any = ShearReadingPages(stage.pk)  # a sequence the paginator slices lazily
+        page = self.paginate_queryset(readings)
         return self.get_paginated_response(s.ShearReadingOut(page, many=True).data)
 
     @extend_schema(responses=s.ConsolidationReadingOut(many=True), filters=False)

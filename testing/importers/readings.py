@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import csv
 import io
+import re
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 
@@ -73,8 +74,17 @@ def resolve_columns(
 # --- CSV ----------------------------------------------------------------------------------------
 
 
+# A line with its ending (\r\n, \r or \n, as ``newline=""`` reads them), or the last line without one.
+_LINE = re.compile(r"[^\r\n]*(?:\r\n?|\n)|[^\r\n]+\Z")
+
+
+def _lines(text: str) -> Iterator[str]:
+    """The text's lines, one at a time: reading the header of a large file copies nothing else."""
+    return (m.group() for m in _LINE.finditer(text))
+
+
 def _csv_rows(text: str, layout: Layout) -> Iterator[tuple[int, list[str]]]:
-    reader = csv.reader(io.StringIO(text, newline=""), delimiter=layout.delimiter)
+    reader = csv.reader(_lines(text), delimiter=layout.delimiter)
     for cells in reader:
         yield reader.line_num, cells
 

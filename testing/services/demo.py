@@ -586,6 +586,9 @@ def _store_readings(
 # --- Equipment register and logger files (an expired calibration shows its flag) ----------------
 
 _LOGGER_LAYOUT_NAME = "Bench logger export (semicolon; min, in, kN)"
+# DS-03 is sheared slowly enough for drained conditions under its method's rate check (the limit
+# comes out near 0.0095 mm/min for this clay's t50), so its only flag is the expired calibration.
+_LOGGER_RATE_MM_PER_MIN = 0.006
 
 
 def _logger_set(
@@ -694,9 +697,10 @@ def _logger_set(
             },
             stage={
                 "force_unit": ForceUnit.NEWTON,
-                "rate_mm_per_min": params.rate_mm_per_min,
-                "consolidation_started_at": tested_on + timedelta(hours=4 * number),
-                "shear_started_at": tested_on + timedelta(hours=4 * number + 2),
+                "rate_mm_per_min": _LOGGER_RATE_MM_PER_MIN,
+                # One specimen a day: each shears for about 28 h.
+                "consolidation_started_at": tested_on + timedelta(days=number - 1),
+                "shear_started_at": tested_on + timedelta(days=number - 1, hours=2),
             },
         )
         stage_calibration_link(user=user, stage=stage, device=cell)
@@ -711,7 +715,7 @@ def _logger_set(
             seed=300 + number,
             soil=params.soil,
             normal_stress_kpa=sigma,
-            rate_mm_per_min=params.rate_mm_per_min,
+            rate_mm_per_min=_LOGGER_RATE_MM_PER_MIN,
             phi_peak_deg=params.phi_peak_deg,
             phi_cv_deg=params.phi_cv_deg,
             cohesion_kpa=params.cohesion_kpa,

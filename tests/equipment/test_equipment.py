@@ -19,6 +19,7 @@ from testing.models import (
     ShearStage,
 )
 from testing.selectors_readings import ShearColumns, shear_columns, shear_reading_count
+from testing.services.direct_shear import stage_reduction_compute
 from testing.services.equipment import (
     calibration_in_force,
     calibration_record_create,
@@ -155,6 +156,11 @@ def test_demo_logger_files_import_in_two_layouts_and_show_the_expired_flag(
         assert stage.consolidation_readings.count() >= 10
         flags = stage_calibration_flags(stage, stage.shear_started_at.date())  # type: ignore[union-attr]
         assert [f.code for f in flags] == ["CALIBRATION_EXPIRED"]
+        # Sheared slowly enough for drained conditions: the rate check passes.
+        reduction = stage_reduction_compute(stage)
+        assert reduction.max_rate_mm_per_min is not None
+        assert reduction.measured_rate_mm_per_min <= reduction.max_rate_mm_per_min
+        assert "RATE_TOO_FAST" not in [f.code for f in reduction.flags]
     # The second layout (inches, kN, downward positive, continuous clock) lands in the same units
     # as the canonical one: 1 in = 25.4 mm and 1 kN = 1000 N exactly (NIST SP 811).
     third = stages[2]

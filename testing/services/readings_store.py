@@ -11,7 +11,6 @@ from typing import Any
 
 import numpy as np
 from django.db import IntegrityError, connection
-from django.db.models import Field
 
 from testing.importers.rows import ParsedReadings
 from testing.models import ConsolidationReading, ShearReadingBlock, ShearStage
@@ -108,21 +107,18 @@ def _write_shear_batch(write: ShearWriter, columns: ShearColumns, start: int, st
     write(columns, start, stop)
 
 
+# One block row; the names are checked against the model by tests/testing/test_reading_blocks.py.
+INSERT_BLOCK_SQL = (
+    'INSERT INTO "testing_shearreadingblock" ("stage_id", "traverse", "first_seq", "count", '
+    '"elapsed_min", "horizontal_mm", "vertical_mm", "force_reading") '
+    "VALUES (%s, %s, %s, %s, %s, %s, %s, %s)"
+)
+
+
 def _insert_block(stage_id: int) -> ShearWriter:
     """One INSERT per block. On PostgreSQL through a server-side-binding cursor, so the packed
     columns travel as binary parameters (Django's client-side binding would spell each 400 kB
     column out as hex inside the SQL text, about 7 times slower)."""
-    meta = ShearReadingBlock._meta
-    names = ["stage_id", "traverse", "first_seq", "count", *ShearReadingBlock.COLUMNS]
-    quoted = []
-    for name in names:
-        field = meta.get_field(name)
-        assert isinstance(field, Field) and field.column
-        quoted.append(connection.ops.quote_name(field.column))
-    sql = (
-        f"INSERT INTO {connection.ops.quote_name(meta.db_table)} ({', '.join(quoted)}) "
-        f"VALUES ({', '.join(['%s'] * len(names))})"
-    )
 
     def values(columns: ShearColumns, start: int, stop: int) -> list[Any]:
         return [
@@ -139,13 +135,13 @@ def _insert_block(stage_id: int) -> ShearWriter:
         def write_pg(columns: ShearColumns, start: int, stop: int) -> None:
             connection.ensure_connection()
             with connection.wrap_database_errors, psycopg.Cursor(connection.connection) as cursor:
-                cursor.execute(sql, values(columns, start, stop))
+                cursor.execute(INSERT_BLOCK_SQL, values(columns, start, stop))
 
         return write_pg
 
     def write(columns: ShearColumns, start: int, stop: int) -> None:
         with connection.cursor() as cursor:
-            cursor.execute(sql, values(columns, start, stop))
+            cursor.execute(INSERT_BLOCK_SQL, values(columns, start, stop))
 
     return write
 

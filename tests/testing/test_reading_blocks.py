@@ -216,3 +216,12 @@ def test_the_migration_keeps_every_reading(cast: Cast, records_a: Records) -> No
     with _old_layout(), connection.cursor() as cursor:
         cursor.execute(f"SELECT {COLUMNS} FROM testing_shearreading ORDER BY traverse, seq")
         assert [tuple(r) for r in cursor.fetchall()] == rows
+
+
+def test_the_block_insert_names_the_model_s_table_and_columns() -> None:
+    """The write path's SQL is a fixed string (no names formatted in); it must match the model."""
+    meta = ShearReadingBlock._meta
+    names = ["stage", "traverse", "first_seq", "count", *ShearReadingBlock.COLUMNS]
+    columns = ", ".join(f'"{meta.get_field(n).column}"' for n in names)  # type: ignore[union-attr]
+    expected = f'INSERT INTO "{meta.db_table}" ({columns}) VALUES ({", ".join(["%s"] * 8)})'
+    assert expected == readings_store.INSERT_BLOCK_SQL

@@ -1,7 +1,7 @@
 """Reading a stage's shear readings out of their column blocks (:class:`ShearReadingBlock`).
 
 Every reader goes through here: the reduction's inputs, the audit digest, the calibration range
-check, the API's pages of readings, the exports. A stage's readings come back in one query, as
+check, the API's pages of readings, the stage pages. A stage's readings come back in one query, as
 numpy columns in (traverse, reading number) order.
 """
 
@@ -26,7 +26,7 @@ def decode_column(raw: Any) -> NDArray[np.float64]:
 
 @dataclass(frozen=True)
 class ShearReadingRow:
-    """One shear reading, as the API and the exports show it."""
+    """One shear reading, as the API shows it."""
 
     traverse: int
     seq: int
@@ -49,6 +49,17 @@ class ShearColumns:
 
     def __len__(self) -> int:
         return int(self.seq.size)
+
+    def arrays(self) -> tuple[NDArray[Any], ...]:
+        """(traverse, seq, elapsed_min, horizontal_mm, vertical_mm, force_reading)."""
+        return (
+            self.traverse, self.seq, self.elapsed_min, self.horizontal_mm, self.vertical_mm,
+            self.force_reading,
+        )  # fmt: skip
+
+    def take(self, order: NDArray[np.intp]) -> ShearColumns:
+        """The readings in ``order`` (indices into these columns)."""
+        return ShearColumns(*(np.asarray(a)[order] for a in self.arrays()))
 
     def row(self, k: int) -> ShearReadingRow:
         return ShearReadingRow(

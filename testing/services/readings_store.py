@@ -84,7 +84,7 @@ def write_shear_columns(stage_id: int, columns: ShearColumns) -> None:
     d_tr, d_sq = np.diff(tr), np.diff(sq)
     if not ((d_tr > 0) | ((d_tr == 0) & (d_sq > 0))).all():
         order = np.lexsort((sq, tr))
-        columns = ShearColumns(*(np.asarray(c)[order] for c in _column_tuple(columns)))
+        columns = columns.take(order)
         tr, sq = tr[order], sq[order]
         d_tr, d_sq = np.diff(tr), np.diff(sq)
     repeated = np.flatnonzero((d_tr == 0) & (d_sq == 0))
@@ -96,10 +96,6 @@ def write_shear_columns(stage_id: int, columns: ShearColumns) -> None:
     for run_start, run_stop in pairwise(cuts):
         for start in range(run_start, run_stop, BLOCK_READINGS):
             _write_shear_batch(write, columns, start, min(run_stop, start + BLOCK_READINGS))
-
-
-def _column_tuple(c: ShearColumns) -> tuple[np.ndarray, ...]:
-    return (c.traverse, c.seq, c.elapsed_min, c.horizontal_mm, c.vertical_mm, c.force_reading)
 
 
 def _write_shear_batch(write: ShearWriter, columns: ShearColumns, start: int, stop: int) -> None:

@@ -147,9 +147,6 @@ def stage_inputs_load(stage: ShearStage) -> StageInputs:
     box = box_geometry(test)
     calibration = stage_force_calibration(stage)
     shear = shear_columns(stage.pk)
-    rows = np.column_stack(
-        (shear.elapsed_min, shear.horizontal_mm, shear.vertical_mm, shear.force_reading)
-    ).reshape(-1, 4)
     cons = np.array(
         ConsolidationReading.objects.filter(stage=stage)
         .order_by("elapsed_min")
@@ -186,10 +183,10 @@ def stage_inputs_load(stage: ShearStage) -> StageInputs:
     return StageInputs(
         stage_id=stage.pk,
         settings=settings,
-        time_min=rows[:, 0].copy(),
-        horizontal_mm=rows[:, 1].copy(),
-        vertical_mm=rows[:, 2].copy(),
-        force_reading=rows[:, 3].copy(),
+        time_min=shear.elapsed_min,
+        horizontal_mm=shear.horizontal_mm,
+        vertical_mm=shear.vertical_mm,
+        force_reading=shear.force_reading,
         consolidation_time_min=cons[:, 0].copy(),
         consolidation_settlement_mm=cons[:, 1].copy(),
         calibration=calibration,

@@ -75,19 +75,15 @@ def test_readings_come_back_bit_for_bit_in_traverse_and_reading_order(
     seq = list(range(1, n1 + 1)) + list(range(1, n2 + 1))
     given = _columns(traverse, seq)
     shuffle = np.random.default_rng(5).permutation(n1 + n2)
-    write_shear_columns(stage.pk, ShearColumns(*(np.asarray(c)[shuffle] for c in _all(given))))
+    write_shear_columns(stage.pk, given.take(shuffle))
     assert ShearReadingBlock.objects.filter(stage=stage).count() == 3 + 2  # 2500 → 3, 1200 → 2
     stored = shear_columns(stage.pk)
-    for got, want in zip(_all(stored), _all(given), strict=True):
+    for got, want in zip(stored.arrays(), given.arrays(), strict=True):
         assert got.tobytes() == np.asarray(want, dtype=got.dtype).tobytes()
     assert shear_reading_count(stage.pk) == n1 + n2
     assert shear_force_span(stage.pk) == (given.force_reading.min(), given.force_reading.max())
     only_two = shear_columns(stage.pk, traverses=[2])
     assert set(only_two.traverse.tolist()) == {2} and len(only_two) == n2
-
-
-def _all(c: ShearColumns) -> tuple[np.ndarray, ...]:
-    return (c.traverse, c.seq, c.elapsed_min, c.horizontal_mm, c.vertical_mm, c.force_reading)
 
 
 @pytest.mark.django_db
@@ -212,7 +208,9 @@ def test_the_migration_keeps_every_reading(cast: Cast, records_a: Records) -> No
         )
     assert ShearReadingBlock.objects.filter(stage=stage).count() == 3  # 1–3, 5, and traverse 2
     stored = shear_columns(stage.pk)
-    assert [(stage.pk, *r) for r in zip(*(a.tolist() for a in _all(stored)), strict=True)] == rows
+    assert [
+        (stage.pk, *r) for r in zip(*(a.tolist() for a in stored.arrays()), strict=True)
+    ] == rows
     with _old_layout(), connection.cursor() as cursor:
         cursor.execute(f"SELECT {COLUMNS} FROM testing_shearreading ORDER BY traverse, seq")
         assert [tuple(r) for r in cursor.fetchall()] == rows
